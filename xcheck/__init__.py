@@ -1,0 +1,3 @@
+"""xcheck: compare a measured ring-down or step trace with SPICE and closed-form theory."""
+
+__version__ = "0.1.0"
