@@ -1,0 +1,3 @@
+from xcheck.cli import entry
+
+entry()
