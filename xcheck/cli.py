@@ -59,7 +59,16 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def _paragraph(message: str) -> str:
-    return textwrap.fill(" ".join(str(message).split()), width=100) + "\n"
+    # Break only at spaces: never inside a file path, a key or a hyphenated word.
+    return (
+        textwrap.fill(
+            " ".join(str(message).split()),
+            width=100,
+            break_long_words=False,
+            break_on_hyphens=False,
+        )
+        + "\n"
+    )
 
 
 def main(argv: Sequence[str] | None = None) -> int:

@@ -53,13 +53,14 @@ UNIT_ALIASES: dict[str, str] = {
     "hz": "Hz",
 }
 
-_NUMBER = r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?"
+# ASCII digits only: ``\d`` would also accept other scripts' digits, which float() reads.
+_NUMBER = r"[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+-]?[0-9]+)?"
 _SUFFIX = r"meg|mil|[tgkmuµμnpf]"
 _UNIT = r"ohms|ohm|hz|[fhvas]|Ω|ω"
 _VALUE_RE = re.compile(
-    rf"^(?P<number>{_NUMBER})(?P<suffix>{_SUFFIX})?(?P<unit>{_UNIT})?$", re.IGNORECASE
+    rf"(?P<number>{_NUMBER})(?P<suffix>{_SUFFIX})?(?P<unit>{_UNIT})?", re.IGNORECASE
 )
-_PERCENT_RE = re.compile(rf"^(?P<number>{_NUMBER})\s*%$")
+_PERCENT_RE = re.compile(rf"(?:±\s*)?(?P<number>{_NUMBER})\s*%")
 
 _M_TRAP_HELP = (
     "an upper-case 'M' suffix is ambiguous: in SPICE 'm' and 'M' mean milli (1e-3) "
@@ -104,7 +105,7 @@ def parse_value(text: str | int | float, *, unit: str | None = None) -> float:
             f"expected a number or a string such as '4.7u', got {type(text).__name__}"
         )
     stripped = text.strip().replace(" ", "")
-    match = _VALUE_RE.match(stripped)
+    match = _VALUE_RE.fullmatch(stripped)
     if match is None:
         raise ValueParseError(
             f"cannot read {text!r} as a value; expected a number with an optional "
@@ -143,7 +144,9 @@ def parse_tolerance(text: str | int | float) -> float:
     Parameters
     ----------
     text
-        ``"5%"``, ``"0.5 %"`` or a plain number already a fraction (``0.05``).
+        ``"5%"``, ``"0.5 %"``, ``"±10%"``, or a plain number already a fraction
+        (``0.05``); a bare number of 1 or more is rejected as ambiguous (``20``
+        would be 2000 %).
 
     Returns
     -------
@@ -153,10 +156,11 @@ def parse_tolerance(text: str | int | float) -> float:
     Raises
     ------
     ValueParseError
-        When the text is not a percentage or fraction, or is negative.
+        When the text is not a percentage or fraction, is negative, or is a bare
+        number of 1 or more.
     """
     if isinstance(text, str):
-        match = _PERCENT_RE.match(text.strip())
+        match = _PERCENT_RE.fullmatch(text.strip())
         if match is None:
             raise ValueParseError(
                 f"cannot read {text!r} as a tolerance; write a percentage such as '5%'"
@@ -164,6 +168,11 @@ def parse_tolerance(text: str | int | float) -> float:
         fraction = float(match.group("number")) / 100.0
     else:
         fraction = parse_value(text)
+        if fraction >= 1:
+            raise ValueParseError(
+                f"a bare tolerance {text!r} is read as a fraction ({fraction * 100:g} %); "
+                f"write a percentage such as '{text:g}%' if that is what was meant"
+            )
     if fraction < 0 or not math.isfinite(fraction):
         raise ValueParseError(f"a tolerance must be zero or positive, got {text!r}")
     return fraction
@@ -199,7 +208,6 @@ def format_eng(value: float, unit: str = "", digits: int = 3) -> str:
         return f"{value} {symbol}".strip()
     if value == 0:
         return f"0 {symbol}".strip()
-    exponent = math.floor(math.log10(abs(value)))
     # Round first so that 999.96 becomes 1.00k rather than 1000.
     rounded = float(f"{value:.{digits - 1}e}")
     exponent = math.floor(math.log10(abs(rounded)))

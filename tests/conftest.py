@@ -1,0 +1,66 @@
+"""Shared pytest fixtures. Keep this file small; add fixtures next to the tests that
+use them unless several test modules need them."""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from pathlib import Path
+
+import pytest
+
+#: The format's documented example fixture (natural response, invented scenario),
+#: without its [step] table, which a natural response does not take.
+EXAMPLE_FIXTURE_TOML = '''\
+title = "Film capacitor ring-down, jig B (invented example)"
+response = "natural"
+loop = ["SW1", "C1", "R1", "L1"]
+probe = "C1"
+
+[parts.C1]
+kind = "capacitor"
+nominal = "47u"
+measured = "49.1u"
+tolerance = "20%"
+esr = "40m"
+initial = "12"
+
+[parts.R1]
+kind = "resistor"
+nominal = "0.22"
+measured = { reading = "0.291", leads = "0.058" }
+
+[parts.L1]
+kind = "inductor"
+nominal = "470u"
+dcr = "?"
+
+[parts.SW1]
+kind = "switch"
+resistance = "5m"
+
+[loop_reading]
+reading = "0.512"
+leads = "0.058"
+
+[probe_loading]
+resistance = "10meg"
+capacitance = "11p"
+'''
+
+
+@pytest.fixture
+def example_fixture_toml() -> str:
+    """TOML text of a valid natural-response fixture (invented scenario)."""
+    return EXAMPLE_FIXTURE_TOML
+
+
+@pytest.fixture
+def write_toml(tmp_path: Path) -> Callable[[str, str], Path]:
+    """Factory writing TOML text to ``tmp_path/<name>`` and returning the path."""
+
+    def write(text: str, name: str = "fixture.toml") -> Path:
+        path = tmp_path / name
+        path.write_text(text, encoding="utf-8")
+        return path
+
+    return write

@@ -1,0 +1,86 @@
+"""``xcheck compare FIXTURE (--trace FILE | --peaks FILE) [--out DIR] [--max-nrmse X]``."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import time
+from pathlib import Path
+
+from xcheck.compare import Comparison, run_comparison
+from xcheck.errors import XcheckError
+from xcheck.fixture import load_fixture
+from xcheck.report import write_report
+from xcheck.values import parse_value
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    """Register the compare options."""
+    parser.add_argument("fixture", help="fixture description (TOML)")
+    source = parser.add_mutually_exclusive_group(required=True)
+    source.add_argument("--trace", help="scope export (CSV, optionally .gz)")
+    source.add_argument("--peaks", help="table of extrema read off cursors (CSV)")
+    parser.add_argument("--column", help="channel of the trace: header name or 0-based index")
+    parser.add_argument("--event-time", help="event time in the file's time base, e.g. '1.5m'")
+    parser.add_argument("--out", help="report folder (default reports/<fixture name>/)")
+    parser.add_argument("--max-nrmse", type=float,
+                        help="exit 1 when the best candidate's NRMSE exceeds this fraction (e.g. 0.02)")
+    parser.add_argument("--no-ngspice", action="store_true",
+                        help="skip the ngspice evaluation (closed form only)")
+    parser.add_argument("--quiet", action="store_true", help="no progress lines")
+
+
+def _column(text: str | None) -> str | int | None:
+    if text is None:
+        return None
+    return int(text) if text.strip().isdigit() else text
+
+
+def progress_printer(quiet: bool):
+    """A progress callback that writes timestamped lines to stderr."""
+    start = time.monotonic()
+
+    def say(message: str) -> None:
+        if not quiet:
+            sys.stderr.write(f"[{time.monotonic() - start:5.1f} s] {message}\n")
+            sys.stderr.flush()
+
+    return say
+
+
+def finish(comparison: Comparison, out: Path, max_nrmse: float | None, say) -> int:
+    """Write the report, print the verdict and where it went; return the exit status."""
+    say("writing the report")
+    folder = write_report(comparison, out)
+    print(comparison.verdict)
+    print(f"report: {folder / 'report.md'}")
+    best = comparison.best
+    if max_nrmse is not None:
+        nrmse = best.theory.nrmse if best is not None and best.theory is not None else float("inf")
+        if not nrmse <= max_nrmse:
+            print(f"best candidate NRMSE {nrmse:.3%} exceeds --max-nrmse {max_nrmse:.3%}")
+            return 1
+    return 0
+
+
+def run(args: argparse.Namespace) -> int:
+    """Run the comparison and write the report."""
+    say = progress_printer(args.quiet)
+    fixture = load_fixture(args.fixture)
+    event_time = None
+    if args.event_time is not None:
+        try:
+            event_time = parse_value(args.event_time, unit="s")
+        except XcheckError as exc:
+            raise XcheckError(f"--event-time: {exc}") from None
+    comparison = run_comparison(
+        fixture,
+        trace=args.trace,
+        peaks=args.peaks,
+        column=_column(args.column),
+        event_time=event_time,
+        use_ngspice=not args.no_ngspice,
+        progress=say,
+    )
+    out = Path(args.out) if args.out else Path("reports") / fixture.name
+    return finish(comparison, out, args.max_nrmse, say)

@@ -1,0 +1,407 @@
+"""The three-way comparison: measured versus SPICE versus closed-form theory.
+
+:func:`run_comparison` reads and aligns the measurement, estimates its ring-down,
+fits every candidate with the closed-form engine, evaluates each fitted candidate in
+ngspice, ranks the candidates by BIC and writes a verdict. It returns a
+:class:`Comparison`; rendering is :mod:`xcheck.report`'s job.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import math
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Callable
+
+import numpy as np
+
+from xcheck.candidates import (
+    Candidate,
+    build_candidates,
+    dc_series_keys,
+    series_resistance,
+)
+from xcheck.circuit import build_circuit
+from xcheck.engines.theory import SecondOrder, TheoryNotApplicable, characterise, simulate_theory
+from xcheck.errors import SimulationError, XcheckError
+from xcheck.fit import FitResult, Observation, fit_candidate
+from xcheck.fixture import Fixture
+from xcheck.measured import Measured, measure
+from xcheck.rank import Ranked, rank_by_bic
+from xcheck.values import format_eng
+
+#: Engines agree to about 1e-4 of the amplitude (tested); beyond 1e-3 it is a deck,
+#: time-step or approximation problem worth a reviewer's attention.
+ENGINE_DISAGREEMENT_LIMIT = 1e-3
+#: Longest record the fit evaluates (points); longer traces are decimated evenly.
+MAX_FIT_POINTS = 20_000
+
+Progress = Callable[[str], None]
+
+
+@dataclass(frozen=True)
+class EngineMetrics:
+    """How well one engine's prediction of a fitted candidate matches the measurement."""
+
+    engine: str
+    rmse: float
+    nrmse: float
+    max_error: float
+    damped_frequency_error_hz: float
+    neper_frequency_error_per_s: float
+    aic: float
+    bic: float
+
+
+@dataclass(frozen=True)
+class CandidateOutcome:
+    """Everything known about one candidate after fitting and simulation."""
+
+    candidate: Candidate
+    fit: FitResult
+    ranked: Ranked
+    theory: EngineMetrics | None = None
+    ngspice: EngineMetrics | None = None
+    second_order: SecondOrder | None = None
+    series_resistance_ohm: float = float("nan")
+    engine_disagreement: float = float("nan")
+    engine_notes: tuple[str, ...] = ()
+    theory_curve: np.ndarray | None = None
+    ngspice_curve: np.ndarray | None = None
+
+    @property
+    def name(self) -> str:
+        return self.candidate.name
+
+    @property
+    def failed(self) -> bool:
+        return self.fit.failed
+
+    @property
+    def engines_disagree(self) -> bool:
+        """True when ngspice and theory differ by more than numerical precision."""
+        return math.isfinite(self.engine_disagreement) and (
+            self.engine_disagreement > ENGINE_DISAGREEMENT_LIMIT
+        )
+
+
+@dataclass(frozen=True)
+class InputFile:
+    """An input with its checksum, for the report's provenance table."""
+
+    role: str
+    path: str
+    sha256: str
+
+
+@dataclass(frozen=True)
+class Comparison:
+    """Result of a three-way comparison, ready for :mod:`xcheck.report`."""
+
+    fixture: Fixture
+    measured: Measured
+    observation: Observation
+    outcomes: tuple[CandidateOutcome, ...]
+    verdict: str
+    inputs: tuple[InputFile, ...]
+    loop_findings: tuple[str, ...] = ()
+    seeds: dict[str, int] = field(default_factory=dict)
+    ngspice_version: str = ""
+
+    @property
+    def best(self) -> CandidateOutcome | None:
+        """The top-ranked candidate, or None when every candidate failed."""
+        ranked = [o for o in self.outcomes if o.ranked.rank == 1]
+        return ranked[0] if ranked else None
+
+    def outcome(self, name: str) -> CandidateOutcome:
+        """The outcome of the candidate called ``name``."""
+        for item in self.outcomes:
+            if item.name == name:
+                return item
+        raise KeyError(name)
+
+
+def sha256_of(path: str | Path) -> str:
+    """Hex SHA-256 of a file's bytes."""
+    digest = hashlib.sha256()
+    with open(path, "rb") as handle:
+        for block in iter(lambda: handle.read(1 << 20), b""):
+            digest.update(block)
+    return digest.hexdigest()
+
+
+def run_comparison(
+    fixture: Fixture,
+    *,
+    trace: str | Path | None = None,
+    peaks: str | Path | None = None,
+    column: str | int | None = None,
+    event_time: float | None = None,
+    use_ngspice: bool = True,
+    progress: Progress | None = None,
+) -> Comparison:
+    """Compare the fixture's candidate models with one measurement.
+
+    Parameters
+    ----------
+    fixture
+        The fixture description.
+    trace, peaks
+        Exactly one: a scope export or a table of extrema read off cursors.
+    column
+        Channel of the trace to use (name or 0-based index).
+    event_time
+        Manual event time in the file's time base (s), overriding detection.
+    use_ngspice
+        Evaluate each fitted candidate in ngspice too (the default).
+    progress
+        Called with a short line of text as each stage starts.
+
+    Returns
+    -------
+    Comparison
+    """
+    say = progress or (lambda _message: None)
+    if (trace is None) == (peaks is None):
+        raise XcheckError("give exactly one measurement: a trace (--trace) or a peak table (--peaks)")
+    say("reading and aligning the measurement")
+    measured = measure(fixture, trace=trace, peaks=peaks, column=column, event_time=event_time)
+    observation = measured.observation(max_points=MAX_FIT_POINTS)
+    candidates = build_candidates(fixture)
+    fits: list[FitResult] = []
+    for index, candidate in enumerate(candidates, 1):
+        say(f"fitting candidate {index}/{len(candidates)}: {candidate.name}")
+        fits.append(fit_candidate(fixture, candidate, observation))
+    ranking = rank_by_bic(
+        [f.candidate for f in fits], [f.bic for f in fits], [f.failed for f in fits]
+    )
+    by_name = {r.name: r for r in ranking}
+    outcomes = []
+    version = ""
+    for index, (candidate, fit) in enumerate(zip(candidates, fits), 1):
+        if use_ngspice and not fit.failed:
+            say(f"ngspice run {index}/{len(candidates)}: {candidate.name}")
+        outcome = _evaluate(fixture, candidate, fit, by_name[candidate.name], measured,
+                            observation, use_ngspice)
+        outcomes.append(outcome)
+    if use_ngspice:
+        version = _ngspice_version()
+    ordered = sorted(outcomes, key=lambda o: (o.ranked.rank is None, o.ranked.rank or 0))
+    inputs = [InputFile("fixture", str(fixture.source), sha256_of(fixture.source))] if fixture.source else []
+    measurement_path = trace if trace is not None else peaks
+    inputs.append(InputFile("trace" if trace is not None else "peak table", str(measurement_path),
+                            sha256_of(measurement_path)))
+    loop_findings = tuple(_loop_findings(fixture, ordered))
+    verdict = write_verdict(fixture, measured, ordered, loop_findings)
+    return Comparison(fixture, measured, observation, tuple(ordered), verdict, tuple(inputs),
+                      loop_findings, {}, version)
+
+
+def _ngspice_version() -> str:
+    try:
+        from xcheck.engines.ngspice import ngspice_version
+
+        return ngspice_version()
+    except (XcheckError, ImportError, OSError):
+        return "unavailable"
+
+
+def _evaluate(
+    fixture: Fixture,
+    candidate: Candidate,
+    fit: FitResult,
+    ranked: Ranked,
+    measured: Measured,
+    obs: Observation,
+    use_ngspice: bool,
+) -> CandidateOutcome:
+    if fit.failed or fit.parameters is None:
+        return CandidateOutcome(candidate, fit, ranked)
+    circuit = build_circuit(fixture, fit.parameters)
+    notes: list[str] = []
+    try:
+        second = characterise(circuit)
+    except TheoryNotApplicable as exc:
+        second = None
+        notes.append(str(exc))
+    theory_curve = fit.model
+    theory_metrics = _metrics("theory", obs, theory_curve, fit, measured, second)
+    ngspice_metrics = None
+    ngspice_curve = None
+    disagreement = float("nan")
+    if use_ngspice:
+        try:
+            ngspice_curve, disagreement = _ngspice_curve(circuit, fit, obs)
+            ngspice_metrics = _metrics("ngspice", obs, ngspice_curve, fit, measured, second)
+        except SimulationError as exc:
+            notes.append(f"ngspice: {exc}")
+    return CandidateOutcome(
+        candidate,
+        fit,
+        ranked,
+        theory_metrics,
+        ngspice_metrics,
+        second,
+        series_resistance(fixture, fit.parameters),
+        disagreement,
+        tuple(notes),
+        theory_curve,
+        ngspice_curve,
+    )
+
+
+def _ngspice_curve(circuit, fit: FitResult, obs: Observation) -> tuple[np.ndarray, float]:
+    """ngspice's prediction with the fit's nuisance values applied, and its largest
+    difference from theory relative to the prediction's amplitude."""
+    from xcheck.engines.ngspice import simulate_ngspice
+
+    if obs.kind == "trace":
+        shift = fit.nuisance["shift"][0] * obs.period * 1e-3
+        times = np.maximum(obs.time - shift, 0.0)
+        stop = float(times[-1]) * 1.0001
+        wave = simulate_ngspice(circuit, stop_time=stop)
+        raw = wave.at(times)
+        theory = simulate_theory(circuit, times).probe_voltage
+        gain = fit.nuisance["gain"][0]
+        amplitude = float(np.max(np.abs(theory))) or 1.0
+        offset = float(np.mean(fit.model - gain * theory))
+        return gain * raw + offset, float(np.max(np.abs(raw - theory)) / amplitude)
+    # Peak table: extrema of ngspice's waveform, numbered from the event.
+    second = characterise(circuit)
+    count = int(np.rint((obs.time[-1] - obs.time[0]) / (obs.period / 2))) + 1
+    half = math.pi / second.omega_d
+    wave = simulate_ngspice(circuit, stop_time=(count + 1) * half)
+    t_theory = np.arange(count) * half
+    t_ng, v_ng = _extrema_near(wave.time, wave.probe_voltage, t_theory, half / 4)
+    theory_wave = simulate_theory(circuit, t_theory).probe_voltage
+    amplitude = float(np.max(np.abs(theory_wave))) or 1.0
+    index = np.rint((obs.time - obs.time[0]) / (obs.period / 2)).astype(int)
+    scale = fit.nuisance["amplitude"][0] / (theory_wave[0] or 1.0)
+    return scale * v_ng[index], float(np.max(np.abs(v_ng - theory_wave)) / amplitude)
+
+
+def _extrema_near(time: np.ndarray, volts: np.ndarray, targets: np.ndarray,
+                  halfwidth: float) -> tuple[np.ndarray, np.ndarray]:
+    """The extremum of ``volts`` within ``halfwidth`` of each target time, refined by a
+    parabola through the largest-magnitude sample and its neighbours."""
+    out_t = np.empty(targets.size)
+    out_v = np.empty(targets.size)
+    for i, target in enumerate(targets):
+        window = np.flatnonzero(np.abs(time - target) <= halfwidth)
+        if window.size == 0:
+            out_t[i], out_v[i] = target, float(np.interp(target, time, volts))
+            continue
+        j = window[np.argmax(np.abs(volts[window]))]
+        out_t[i], out_v[i] = time[j], volts[j]
+        if 0 < j < time.size - 1:
+            t3, v3 = time[j - 1:j + 2], volts[j - 1:j + 2]
+            a, b, c = np.polyfit(t3 - t3[1], v3, 2)
+            if a != 0 and abs(-b / (2 * a)) <= (t3[2] - t3[0]):
+                dt = -b / (2 * a)
+                out_t[i], out_v[i] = t3[1] + dt, c - b * b / (4 * a)
+    return out_t, out_v
+
+
+def _metrics(engine: str, obs: Observation, curve: np.ndarray | None, fit: FitResult,
+             measured: Measured, second: SecondOrder | None) -> EngineMetrics | None:
+    if curve is None:
+        return None
+    error = obs.voltage - curve
+    sigma = np.broadcast_to(np.asarray(obs.sigma, float), error.shape)
+    n = error.size
+    rmse = float(np.sqrt(np.mean(error**2)))
+    chi2 = float(np.sum((error / sigma) ** 2))
+    n_eff = fit.n_effective
+    mean_square = chi2 / n
+    if engine == "theory":
+        aic, bic = fit.aic, fit.bic
+    else:
+        aic = n_eff * math.log(mean_square) + 2 * fit.k
+        bic = n_eff * math.log(mean_square) + fit.k * math.log(n_eff)
+    f_err = a_err = float("nan")
+    if second is not None and second.omega_d > 0:
+        f_err = second.omega_d / (2 * math.pi) - measured.damped_frequency_hz.value
+        a_err = second.alpha - measured.neper_frequency_per_s.value
+    amplitude = abs(measured.initial_volts.value) or float(np.max(np.abs(obs.voltage))) or 1.0
+    return EngineMetrics(engine, rmse, rmse / amplitude, float(np.max(np.abs(error))),
+                         f_err, a_err, float(aic), float(bic))
+
+
+def _loop_findings(fixture: Fixture, outcomes: list[CandidateOutcome]) -> list[str]:
+    """How much series loss the best fit needs beyond the DC loop reading."""
+    findings: list[str] = []
+    best = next((o for o in outcomes if o.ranked.rank == 1), None)
+    if best is None or best.fit.parameters is None:
+        return findings
+    total = best.series_resistance_ohm
+    if fixture.loop_reading is not None:
+        dc = fixture.loop_reading.value
+        esr = sum(best.fit.parameters.get((n, "esr"), 0.0) or 0.0 for n in fixture.loop
+                  if fixture.parts[n].kind == "capacitor")
+        beyond = total - dc - esr
+        findings.append(
+            f"The DC loop reading accounts for {format_eng(dc, 'ohm')} of the "
+            f"{format_eng(total, 'ohm')} series resistance the best candidate needs; stated "
+            f"ESR adds {format_eng(esr, 'ohm')}, leaving {format_eng(beyond, 'ohm')} of loss "
+            "beyond what DC measurements explain (AC loss: skin and proximity effect, core "
+            "loss, dielectric loss, contact resistance that changed)."
+        )
+    else:
+        dc_known = sum(best.fit.parameters.get(k, 0.0) or 0.0 for k in dc_series_keys(fixture))
+        findings.append(
+            f"Itemised DC resistances add up to {format_eng(dc_known, 'ohm')}; the best "
+            f"candidate needs {format_eng(total, 'ohm')} in all. A DC loop reading "
+            "([loop_reading]) would show how much of it is beyond DC."
+        )
+    return findings
+
+
+def write_verdict(fixture: Fixture, measured: Measured, outcomes: list[CandidateOutcome],
+                  loop_findings: tuple[str, ...]) -> str:
+    """One paragraph a reviewer can read: best candidate, the fitted extra, how much
+    worse the as-measured model does, and the measured-side findings."""
+    best = next((o for o in outcomes if o.ranked.rank == 1), None)
+    if best is None:
+        return ("No candidate could be fitted to this measurement; see each candidate's "
+                "reason below.")
+    parts = [f"The best explanation of the measurement is candidate '{best.name}' "
+             f"({best.candidate.description})"]
+    if best.theory is not None:
+        parts[-1] += f", NRMSE {best.theory.nrmse:.2%}"
+    parts[-1] += "."
+    for value in best.fit.fitted:
+        if any(value.label in d.members for d in best.fit.degeneracies):
+            continue
+        parts.append(
+            f"Fitted {value.label} = {format_eng(value.value, value.unit)} ± "
+            f"{format_eng(value.stderr, value.unit)}."
+        )
+    for group in best.fit.degeneracies:
+        if group.combination in ("sum", "product") and math.isfinite(group.value):
+            joiner = " + " if group.combination == "sum" else " × "
+            parts.append(
+                f"The data determine only {joiner.join(group.members)} = "
+                f"{format_eng(group.value, group.unit) if group.combination == 'sum' else f'{group.value:.4g} {group.unit}'}"
+                f" ± {format_eng(group.stderr, group.unit) if group.combination == 'sum' else f'{group.stderr:.2g}'}."
+            )
+    as_measured = next((o for o in outcomes if o.name == "as-measured"), None)
+    if as_measured is not None and as_measured is not best:
+        if as_measured.failed:
+            parts.append(f"The as-measured model could not be fitted ({as_measured.fit.message}).")
+        else:
+            parts.append(
+                f"The as-measured model does worse by ΔBIC = {as_measured.ranked.delta_bic:.1f} "
+                f"({as_measured.ranked.evidence} evidence against it)"
+                + (f", NRMSE {as_measured.theory.nrmse:.2%}" if as_measured.theory else "")
+                + "."
+            )
+    parts.extend(loop_findings)
+    parts.extend(measured.findings)
+    if best.engines_disagree:
+        parts.append(
+            f"Warning: ngspice and theory differ by {best.engine_disagreement:.2%} of the "
+            "amplitude for this candidate, more than numerical precision."
+        )
+    return " ".join(parts)

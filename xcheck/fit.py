@@ -1,0 +1,390 @@
+"""Fit a candidate's free values to a measurement with the fast (closed-form) engine.
+
+A fit never changes its inputs. It returns a :class:`FitResult` carrying success, the
+message, the number of model evaluations, residual statistics, AIC and BIC with the
+effective sample count, fitted values with standard errors, their correlations, and the
+combinations the data determine where single values are not (see
+:mod:`xcheck.identifiability`). A fit that does not converge is a result marked failed,
+never an exception.
+
+Every candidate also fits three nuisance values, so that no candidate loses merely
+because of the instrument: ``gain`` (probe attenuation or vertical-scale error and the
+true initial voltage), ``offset`` (DC offset of the scope channel) and ``shift`` (error
+in the event time, seconds). For a peak table the nuisance values are the amplitude
+scale and the time origin.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Callable, Literal
+
+import numpy as np
+from scipy.optimize import least_squares
+
+from xcheck.candidates import Candidate, FreeParameter
+from xcheck.circuit import build_circuit
+from xcheck.engines.theory import characterise, simulate_theory
+from xcheck.errors import XcheckError
+from xcheck.fixture import Fixture
+from xcheck.identifiability import Degeneracy, find_degeneracies
+from xcheck.parameters import ParameterSet
+
+ObservationKind = Literal["trace", "peaks"]
+
+
+@dataclass(frozen=True)
+class Observation:
+    """What candidates are fitted to: an aligned trace or a peak table.
+
+    Attributes
+    ----------
+    kind
+        ``"trace"`` (samples from the event at t = 0) or ``"peaks"`` (extrema only).
+    time, voltage
+        Seconds and volts. For peaks the time origin may be arbitrary.
+    sigma
+        Standard deviation of each voltage reading (V), scalar or per point.
+    n_effective
+        Effective number of independent samples (oversampled, correlated noise
+        carries less information than its sample count suggests).
+    period
+        Ring period from the ring-down estimate (s); sets the time-shift bounds and
+        numbers the extrema of a peak table.
+    time_sigma
+        For peaks: standard deviation of the extremum times (s).
+    """
+
+    kind: ObservationKind
+    time: np.ndarray
+    voltage: np.ndarray
+    sigma: float | np.ndarray
+    n_effective: float
+    period: float
+    time_sigma: float = 0.0
+    weights_mask: np.ndarray | None = None
+
+
+@dataclass(frozen=True)
+class FittedValue:
+    """One fitted value with its standard error, SI units."""
+
+    label: str
+    key: tuple[str, str]
+    value: float
+    stderr: float
+    unit: str
+    start: float
+    lower: float
+    upper: float
+
+    @property
+    def at_bound(self) -> bool:
+        """True when the value ended on a bound (its stderr then understates)."""
+        span = max(self.upper - self.lower, abs(self.value), 1e-30)
+        return min(abs(self.value - self.lower), abs(self.upper - self.value)) < 1e-6 * span
+
+
+@dataclass(frozen=True)
+class FitResult:
+    """Outcome of fitting one candidate (also for failed fits)."""
+
+    candidate: str
+    success: bool
+    message: str
+    evaluations: int = 0
+    parameters: ParameterSet | None = None
+    fitted: tuple[FittedValue, ...] = ()
+    nuisance: dict[str, tuple[float, float]] = field(default_factory=dict)
+    correlation_labels: tuple[str, ...] = ()
+    correlation: np.ndarray | None = None
+    degeneracies: tuple[Degeneracy, ...] = ()
+    model: np.ndarray | None = None
+    residuals: np.ndarray | None = None
+    rss: float = float("nan")
+    rmse: float = float("nan")
+    n: int = 0
+    n_effective: float = float("nan")
+    k: int = 0
+    aic: float = float("nan")
+    bic: float = float("nan")
+
+    @property
+    def failed(self) -> bool:
+        """True when the fit did not produce a usable model."""
+        return not self.success
+
+
+class _Model:
+    """Maps a parameter vector to model values on the observation's grid."""
+
+    def __init__(self, fixture: Fixture, candidate: Candidate, obs: Observation,
+                 free: tuple[FreeParameter, ...]) -> None:
+        self.fixture = fixture
+        self.candidate = candidate
+        self.obs = obs
+        self.free = free
+        self.evaluations = 0
+
+    def parameters(self, physical: np.ndarray) -> ParameterSet:
+        return self.candidate.parameters.with_values(
+            {f.key: float(v) for f, v in zip(self.free, physical)}
+        )
+
+    def shape(self, physical: np.ndarray, times: np.ndarray) -> np.ndarray:
+        """Unscaled model probe voltage at ``times`` (s from the event)."""
+        self.evaluations += 1
+        circuit = build_circuit(self.fixture, self.parameters(physical))
+        return simulate_theory(circuit, np.maximum(times, 0.0)).probe_voltage
+
+    def extrema(self, physical: np.ndarray, count: int) -> tuple[np.ndarray, np.ndarray]:
+        """Times (from the event) and unit-amplitude values of the first ``count``
+        extrema: t_k = k pi / omega_d, value (-1)^k exp(-alpha t_k)."""
+        self.evaluations += 1
+        circuit = build_circuit(self.fixture, self.parameters(physical))
+        second = characterise(circuit)
+        if not second.omega_d > 0:
+            raise XcheckError("this candidate does not ring (not underdamped)")
+        k = np.arange(count)
+        t = k * np.pi / second.omega_d
+        return t, (-1.0) ** k * np.exp(-second.alpha * t)
+
+
+def _peak_indices(obs: Observation) -> np.ndarray:
+    half = obs.period / 2.0
+    return np.rint((obs.time - obs.time[0]) / half).astype(int)
+
+
+def fit_candidate(fixture: Fixture, candidate: Candidate, obs: Observation) -> FitResult:
+    """Fit ``candidate`` to ``obs``; failures are returned, not raised.
+
+    Parameters
+    ----------
+    fixture
+        The fixture the candidate was built from.
+    candidate
+        Start values and free values (with bounds).
+    obs
+        The measurement.
+
+    Returns
+    -------
+    FitResult
+        With ``success`` False and a plain-words ``message`` when the candidate cannot
+        be built or the optimiser fails.
+    """
+    if not candidate.usable:
+        return FitResult(candidate.name, False, "; ".join(candidate.problems))
+    try:
+        result = _fit(fixture, candidate, obs, candidate.free)
+    except (XcheckError, ValueError, FloatingPointError, np.linalg.LinAlgError) as exc:
+        return FitResult(candidate.name, False, f"fit failed: {exc}")
+    if result.success and result.degeneracies:
+        collapsed = _collapse(candidate.free, result.degeneracies)
+        if collapsed != candidate.free:
+            try:
+                refit = _fit(fixture, candidate, obs, collapsed)
+            except (XcheckError, ValueError, FloatingPointError, np.linalg.LinAlgError) as exc:
+                return FitResult(candidate.name, False, f"refit failed: {exc}")
+            result = _merge_degeneracies(refit, result.degeneracies, collapsed)
+    return result
+
+
+def _collapse(free: tuple[FreeParameter, ...], groups: tuple[Degeneracy, ...]) -> tuple[FreeParameter, ...]:
+    """Keep the first member of each degenerate group free and fix the others."""
+    fixed = set()
+    for group in groups:
+        fixed.update(group.members[1:])
+    return tuple(f for f in free if f.label not in fixed)
+
+
+def _merge_degeneracies(
+    refit: FitResult, groups: tuple[Degeneracy, ...], kept: tuple[FreeParameter, ...]
+) -> FitResult:
+    """Attach each group's determined combination, evaluated at the refit."""
+    values = {f.label: f for f in refit.fitted}
+    params = refit.parameters
+    merged = []
+    for group in groups:
+        members = [m for m in group.members]
+        first = values.get(members[0])
+        stderr = first.stderr if first is not None else float("nan")
+        member_values = [params.get(_key(m), 0.0) or 0.0 for m in members] if params else []
+        if group.combination == "sum":
+            combined = float(sum(member_values))
+        elif group.combination == "product":
+            combined = float(np.prod(member_values))
+            stderr = combined * (first.stderr / first.value) if first and first.value else float("nan")
+        else:
+            combined = float("nan")
+        merged.append(
+            Degeneracy(group.members, group.combination, combined, stderr, group.unit, group.reason,
+                       group.correlation)
+        )
+    return FitResult(**{**refit.__dict__, "degeneracies": tuple(merged)})
+
+
+def _key(label: str) -> tuple[str, str]:
+    part, _, name = label.partition(".")
+    return (part, name)
+
+
+def _fit(fixture: Fixture, candidate: Candidate, obs: Observation,
+         free: tuple[FreeParameter, ...]) -> FitResult:
+    model = _Model(fixture, candidate, obs, free)
+    start = np.array([candidate.parameters.get(f.key, f.start) or f.start for f in free], float)
+    lower = np.array([f.lower for f in free], float)
+    upper = np.array([f.upper for f in free], float)
+    start = np.clip(start, lower, upper)
+    scale = np.maximum(np.abs(start), (upper - lower) * 1e-3)
+    scale = np.where(scale > 0, scale, 1.0)
+    sigma = np.broadcast_to(np.asarray(obs.sigma, float), obs.voltage.shape)
+    residual_fn, nuisance_start, nuisance_bounds, names = _residual_function(model, obs, sigma, start)
+    x0 = np.concatenate([start / scale, nuisance_start])
+    lo = np.concatenate([lower / scale, nuisance_bounds[0]])
+    hi = np.concatenate([upper / scale, nuisance_bounds[1]])
+    x0 = np.clip(x0, lo, hi)
+    n_free = len(free)
+
+    def residuals(x: np.ndarray) -> np.ndarray:
+        return residual_fn(x[:n_free] * scale, x[n_free:])
+
+    solution = least_squares(residuals, x0, bounds=(lo, hi), x_scale="jac", method="trf",
+                             max_nfev=200 * (len(x0) + 1))
+    if not np.all(np.isfinite(solution.fun)):
+        return FitResult(candidate.name, False, "the model produced non-finite values",
+                         evaluations=model.evaluations)
+    physical = solution.x[:n_free] * scale
+    weighted = solution.fun
+    n = weighted.size
+    k = len(x0)
+    n_eff = float(min(obs.n_effective, n)) if obs.kind == "trace" else float(n)
+    chi2 = float(np.sum(weighted**2))
+    dof = max(n - k, 1)
+    jac = solution.jac * np.concatenate([1.0 / scale, np.ones(k - n_free)])[None, :]
+    jac_x = solution.jac
+    cov_x = _covariance(jac_x) * (chi2 / dof) * (n / n_eff)
+    physical_scale = np.concatenate([scale, np.ones(k - n_free)])
+    cov = cov_x * np.outer(physical_scale, physical_scale)
+    stderr = np.sqrt(np.clip(np.diag(cov), 0.0, None))
+    labels = tuple(f.label for f in free) + tuple(names)
+    corr = _correlation(cov)
+    fitted = tuple(
+        FittedValue(f.label, f.key, float(v), float(s), f.unit, float(f.start), f.lower, f.upper)
+        for f, v, s in zip(free, physical, stderr[:n_free])
+    )
+    nuisance = {name: (float(v), float(s)) for name, v, s in
+                zip(names, solution.x[n_free:], stderr[n_free:])}
+    model_values = residual_fn.model_values(physical, solution.x[n_free:])  # type: ignore[attr-defined]
+    residual_volts = obs.voltage - model_values
+    rss_volts = float(np.sum(residual_volts**2))
+    mean_square = chi2 / n
+    aic = n_eff * np.log(mean_square) + 2 * k
+    bic = n_eff * np.log(mean_square) + k * np.log(n_eff)
+    degeneracies = find_degeneracies(jac_x[:, :n_free], free, physical, scale) if n_free > 1 else ()
+    del jac
+    return FitResult(
+        candidate=candidate.name,
+        success=bool(solution.success),
+        message=str(solution.message),
+        evaluations=model.evaluations,
+        parameters=model.parameters(physical),
+        fitted=fitted,
+        nuisance=nuisance,
+        correlation_labels=labels,
+        correlation=corr,
+        degeneracies=tuple(degeneracies),
+        model=model_values,
+        residuals=residual_volts,
+        rss=rss_volts,
+        rmse=float(np.sqrt(rss_volts / residual_volts.size)),
+        n=n,
+        n_effective=n_eff,
+        k=k,
+        aic=float(aic),
+        bic=float(bic),
+    )
+
+
+def _covariance(jac: np.ndarray) -> np.ndarray:
+    """(J^T J)^-1 through the SVD, with numerically null directions left infinite-free
+    (pseudo-inverse) so a degenerate fit still yields finite numbers."""
+    _, s, vt = np.linalg.svd(jac, full_matrices=False)
+    threshold = np.finfo(float).eps * max(jac.shape) * (s[0] if s.size else 0.0)
+    inv = np.where(s > threshold, 1.0 / np.where(s > 0, s, 1.0) ** 2, 0.0)
+    return (vt.T * inv) @ vt
+
+
+def _correlation(cov: np.ndarray) -> np.ndarray:
+    d = np.sqrt(np.clip(np.diag(cov), 0.0, None))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        corr = cov / np.outer(d, d)
+    return np.nan_to_num(corr, nan=0.0)
+
+
+def _residual_function(model: _Model, obs: Observation, sigma: np.ndarray, start: np.ndarray):
+    """Residuals (weighted), nuisance start values and bounds for ``obs``."""
+    if obs.kind == "trace":
+        return _trace_residuals(model, obs, sigma, start)
+    return _peak_residuals(model, obs, sigma, start)
+
+
+def _trace_residuals(model: _Model, obs: Observation, sigma: np.ndarray, start: np.ndarray):
+    time = obs.time
+    mask = obs.weights_mask if obs.weights_mask is not None else np.ones(time.shape, bool)
+    shape0 = model.shape(start, time)
+    # Linear least squares for gain and offset at the start values.
+    design = np.column_stack([shape0[mask], np.ones(mask.sum())])
+    (gain0, offset0), *_ = np.linalg.lstsq(design, obs.voltage[mask], rcond=None)
+    if not np.isfinite(gain0) or gain0 == 0:
+        gain0 = 1.0
+    amplitude = float(np.max(np.abs(obs.voltage[mask] - offset0))) or 1.0
+    max_shift = 0.25 * obs.period
+    shift_scale = obs.period * 1e-3
+    nuisance_start = np.array([gain0, offset0 / amplitude, 0.0])
+    bounds = (np.array([-np.inf, -np.inf, -max_shift / shift_scale]),
+              np.array([np.inf, np.inf, max_shift / shift_scale]))
+
+    def values(physical: np.ndarray, nuisance: np.ndarray) -> np.ndarray:
+        gain, offset, shift = nuisance[0], nuisance[1] * amplitude, nuisance[2] * shift_scale
+        return gain * model.shape(physical, time - shift) + offset
+
+    def residuals(physical: np.ndarray, nuisance: np.ndarray) -> np.ndarray:
+        return ((values(physical, nuisance) - obs.voltage) / sigma)[mask]
+
+    def model_values(physical: np.ndarray, nuisance: np.ndarray) -> np.ndarray:
+        return values(physical, nuisance)
+
+    residuals.model_values = model_values  # type: ignore[attr-defined]
+    return residuals, nuisance_start, bounds, ("gain", "offset", "shift")
+
+
+def _peak_residuals(model: _Model, obs: Observation, sigma: np.ndarray, start: np.ndarray):
+    index = _peak_indices(obs)
+    count = int(index.max()) + 1
+    time_sigma = obs.time_sigma if obs.time_sigma > 0 else obs.period * 1e-3
+    t_model0, v_model0 = model.extrema(start, count)
+    ratio = obs.voltage / v_model0[index]
+    amplitude0 = float(np.median(ratio))
+    origin0 = float(np.mean(obs.time - t_model0[index]))
+    nuisance_start = np.array([amplitude0, 0.0])
+    period = obs.period
+    bounds = (np.array([-np.inf, -0.25 * period / time_sigma]),
+              np.array([np.inf, 0.25 * period / time_sigma]))
+
+    def predicted(physical: np.ndarray, nuisance: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        t_model, v_model = model.extrema(physical, count)
+        return t_model[index] + origin0 + nuisance[1] * time_sigma, nuisance[0] * v_model[index]
+
+    def residuals(physical: np.ndarray, nuisance: np.ndarray) -> np.ndarray:
+        t_pred, v_pred = predicted(physical, nuisance)
+        return np.concatenate([(v_pred - obs.voltage) / sigma, (t_pred - obs.time) / time_sigma])
+
+    def model_values(physical: np.ndarray, nuisance: np.ndarray) -> np.ndarray:
+        return predicted(physical, nuisance)[1]
+
+    residuals.model_values = model_values  # type: ignore[attr-defined]
+    return residuals, nuisance_start, bounds, ("amplitude", "time_origin")
+
+
+ResidualFunction = Callable[[np.ndarray, np.ndarray], np.ndarray]

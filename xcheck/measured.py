@@ -1,0 +1,227 @@
+"""The measured side of a comparison: read, align and estimate one measurement.
+
+:func:`measure` turns a scope export or a peak table into a :class:`Measured`: the
+aligned samples (event at t = 0), the ring-down estimate with its uncertainties and
+envelope diagnostics, the alignment findings, and the :class:`~xcheck.fit.Observation`
+candidates are fitted to.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from xcheck.align import Alignment, align_trace
+from xcheck.fit import Observation
+from xcheck.fixture import Fixture
+from xcheck.ringdown import RingdownEstimate, estimate_from_peaks, estimate_ringdown
+from xcheck.trace import read_peaks, read_trace
+from xcheck.values import format_eng
+
+#: The fit window ends this many decay time constants after the event: beyond it the
+#: ringing is below 1e-4 of its start and only noise is left.
+WINDOW_TIME_CONSTANTS = 9.0
+
+
+@dataclass(frozen=True)
+class Envelope:
+    """Extrema for the envelope figure (s, V), flagged indices and the fitted decay."""
+
+    times: np.ndarray
+    amplitudes: np.ndarray
+    flagged: list[int]
+    alpha: float
+    amplitude0: float
+
+
+@dataclass(frozen=True)
+class Measured:
+    """One measurement, aligned and estimated.
+
+    Attributes
+    ----------
+    kind
+        ``"trace"`` or ``"peaks"``.
+    source
+        The file as given.
+    time, voltage
+        Samples from the event (s, V), or the extrema of a peak table.
+    excluded
+        Samples left out of fits (clipped), as a boolean mask over ``time``.
+    uncertainty
+        Per-reading uncertainty of a peak table (V), or None.
+    estimate
+        The ring-down estimate.
+    alignment
+        Event time, baseline, noise, droop and inversion (traces only).
+    findings
+        Plain-words findings for the verdict (clipping, inversion, envelope, ...).
+    """
+
+    kind: str
+    source: str
+    time: np.ndarray
+    voltage: np.ndarray
+    excluded: np.ndarray
+    uncertainty: np.ndarray | None
+    estimate: RingdownEstimate
+    alignment: Alignment | None
+    findings: tuple[str, ...]
+
+    @property
+    def damped_frequency_hz(self):
+        """f_d estimate (Hz) with standard error."""
+        return self.estimate.damped_frequency
+
+    @property
+    def neper_frequency_per_s(self):
+        """alpha estimate (1/s) with standard error."""
+        return self.estimate.neper_frequency
+
+    @property
+    def initial_volts(self):
+        """Model value at the event (V) with standard error."""
+        return self.estimate.initial_volts
+
+    def observation(self, max_points: int = 20_000) -> Observation:
+        """What candidates are fitted to, decimated evenly to at most ``max_points``."""
+        period = 1.0 / self.estimate.damped_frequency.value
+        if self.kind == "peaks":
+            sigma = (self.uncertainty if self.uncertainty is not None
+                     else np.full(self.voltage.shape, self.estimate.noise_sigma))
+            return Observation("peaks", self.time, self.voltage, sigma, float(self.time.size),
+                               period, time_sigma=_time_scatter(self.time, period))
+        alpha = max(self.estimate.neper_frequency.value, 0.0)
+        end = self.time[-1]
+        if alpha > 0:
+            end = min(end, WINDOW_TIME_CONSTANTS / alpha)
+        window = (self.time <= end) & ~self.excluded
+        index = np.flatnonzero(window)
+        step = max(1, int(math.ceil(index.size / max_points)))
+        index = index[::step]
+        share = index.size * step / max(self.estimate.samples_used, 1)
+        n_eff = float(min(index.size, self.estimate.effective_samples * share))
+        return Observation("trace", self.time[index], self.voltage[index],
+                           float(self.estimate.noise_sigma), max(n_eff, 2.0), period)
+
+    def envelope(self) -> Envelope:
+        """Extrema magnitudes about the fitted offset, for the envelope figure."""
+        est = self.estimate
+        offset = est.offset.value if self.kind == "trace" else 0.0
+        return Envelope(np.asarray(est.extrema_time, float),
+                        np.asarray(est.extrema_value, float) - offset,
+                        list(est.flagged_extrema), est.neper_frequency.value,
+                        float(est.envelope_at(np.array([0.0]))[0]))
+
+    def to_json(self) -> dict[str, Any]:
+        """The ``measured`` object of summary.json."""
+        est = self.estimate
+        data: dict[str, Any] = {
+            "kind": self.kind,
+            "source": self.source,
+            "damped_frequency_hz": _pair(est.damped_frequency),
+            "neper_frequency_per_s": _pair(est.neper_frequency),
+            "initial_volts": _pair(est.initial_volts),
+            "envelope_exponential": bool(est.envelope_exponential),
+            "flagged_extrema": [int(i) for i in est.flagged_extrema],
+            "noise_sigma_volts": _finite(est.noise_sigma),
+            "effective_samples": _finite(est.effective_samples),
+            "samples_excluded": int(self.excluded.sum()),
+            "findings": list(self.findings),
+        }
+        if self.alignment is not None:
+            a = self.alignment
+            data["alignment"] = {
+                "event_time_s": _finite(a.event_time),
+                "baseline_volts": _finite(a.baseline),
+                "noise_rms_volts": _finite(a.noise_rms),
+                "droop_volts_per_s": _finite(a.droop_per_s),
+                "inverted": bool(a.inverted),
+                "manual": bool(a.manual),
+            }
+        return data
+
+
+def _finite(value: float) -> float | None:
+    return float(value) if value is not None and math.isfinite(value) else None
+
+
+def _pair(estimate) -> dict[str, float | None]:
+    return {"value": _finite(estimate.value), "stderr": _finite(estimate.stderr)}
+
+
+def _time_scatter(time: np.ndarray, period: float) -> float:
+    """Scatter (s) of extremum times about equal half-period spacing."""
+    k = np.rint((time - time[0]) / (period / 2))
+    if time.size < 4:
+        return period * 1e-3
+    coeffs = np.polyfit(k, time, 1)
+    residual = time - np.polyval(coeffs, k)
+    return max(float(np.std(residual, ddof=2)), period * 1e-4)
+
+
+def _expected_sign(fixture: Fixture) -> int | None:
+    part = fixture.probed_part
+    if fixture.response == "step" and fixture.step is not None:
+        return int(np.sign(fixture.step.volts)) or None
+    if part.initial:
+        return int(np.sign(part.initial))
+    return None
+
+
+def measure(
+    fixture: Fixture,
+    *,
+    trace: str | Path | None = None,
+    peaks: str | Path | None = None,
+    column: str | int | None = None,
+    event_time: float | None = None,
+) -> Measured:
+    """Read, align and estimate one measurement for ``fixture``.
+
+    Parameters
+    ----------
+    fixture
+        Gives the response kind and the expected polarity.
+    trace, peaks
+        Exactly one of a scope export or a peak table.
+    column
+        Channel of the trace (name or index).
+    event_time
+        Manual event time (s, file time base).
+
+    Returns
+    -------
+    Measured
+    """
+    if peaks is not None:
+        table = read_peaks(peaks)
+        estimate = estimate_from_peaks(table.time, table.voltage, table.uncertainty)
+        findings = tuple(estimate.envelope.findings)
+        return Measured("peaks", str(peaks), table.time - table.time[0], table.voltage,
+                        np.zeros(table.time.size, bool), table.uncertainty, estimate, None,
+                        findings)
+    raw = read_trace(trace, column=column)
+    aligned, alignment = align_trace(raw, event_time=event_time, expect=fixture.response,
+                                     expected_sign=_expected_sign(fixture))
+    excluded = np.asarray(aligned.clipped, bool)
+    noise = alignment.noise_rms if alignment.noise_rms and math.isfinite(alignment.noise_rms) else None
+    estimate = estimate_ringdown(aligned.time, aligned.voltage, noise_sigma=noise,
+                                 exclude=excluded, resolution=raw.resolution)
+    findings = list(alignment.notes)
+    if excluded.any():
+        findings.append(f"{int(excluded.sum())} clipped samples were left out of every fit.")
+    if alignment.inverted:
+        findings.append("The probe looks inverted: the trace's polarity is opposite to the fixture's.")
+    if abs(alignment.droop_per_s) > 0 and alignment.pre_event_samples > 10:
+        findings.append(
+            f"Before the event the voltage drooped at {format_eng(alignment.droop_per_s, 'V')}/s "
+            "(leakage and probe loading)."
+        )
+    findings.extend(estimate.envelope.findings)
+    return Measured("trace", str(trace), aligned.time, aligned.voltage, excluded, None, estimate,
+                    alignment, tuple(findings))
