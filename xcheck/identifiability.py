@@ -53,22 +53,26 @@ class Degeneracy:
     correlation: float = float("nan")
 
 
-def _classify(direction: np.ndarray, values: np.ndarray, units: Sequence[str]) -> str:
-    """Name the null direction in physical units: sum, product, ratio or combination."""
-    absolute = direction / np.max(np.abs(direction))
-    same_units = len(set(units)) == 1
-    if same_units and np.allclose(np.abs(absolute), 1.0, atol=0.05):
-        signs = np.sign(absolute)
-        if len(signs) == 2 and signs[0] != signs[1]:
-            return "sum"
-        if len(signs) > 2 and abs(np.sum(absolute)) < 0.1 * len(signs):
-            return "sum"
-    with np.errstate(divide="ignore", invalid="ignore"):
-        relative = direction / values
-    if np.all(np.isfinite(relative)) and np.max(np.abs(relative)) > 0:
-        relative = relative / np.max(np.abs(relative))
-        if np.allclose(np.abs(relative), 1.0, atol=0.05) and len(relative) == 2:
-            return "product" if relative[0] * relative[1] < 0 else "ratio"
+def _same(columns: np.ndarray) -> bool:
+    """True when every column equals the first within 1e-3 of its norm."""
+    reference = columns[:, :1]
+    size = np.linalg.norm(reference) or 1.0
+    return bool(np.all(np.linalg.norm(columns - reference, axis=0) <= 1e-3 * size))
+
+
+def _classify(physical_columns: np.ndarray, values: np.ndarray, units: Sequence[str]) -> str:
+    """Name what the data determine about a group, from its Jacobian columns.
+
+    Equal columns per unit change (same units): only the sum matters. Equal columns per
+    relative change: only the product matters; opposite ones (two members): the ratio.
+    """
+    if len(set(units)) == 1 and _same(physical_columns):
+        return "sum"
+    relative = physical_columns * values[None, :]
+    if _same(relative):
+        return "product"
+    if relative.shape[1] == 2 and _same(relative * np.array([1.0, -1.0])[None, :]):
+        return "ratio"
     return "combination"
 
 
@@ -112,20 +116,24 @@ def find_degeneracies(
         return found
     normalised = jacobian[:, live] / norms[live]
     _, singular, vt = np.linalg.svd(normalised, full_matrices=False)
+    physical = jacobian / np.where(scale > 0, scale, 1.0)[None, :]
+    member_sets: list[set[int]] = []
     for s, row in zip(singular, vt):
         if s > NULL_RATIO * singular[0]:
             continue
-        # Direction in x, then in physical units.
-        direction_x = row / norms[live]
-        direction = direction_x * scale[live]
         weight = np.abs(row) / np.max(np.abs(row))
-        members_idx = live[weight > 0.1]
-        if members_idx.size < 2:
+        members = set(int(m) for m in live[weight > 0.1])
+        if len(members) < 2:
             continue
-        local = np.array([np.flatnonzero(live == m)[0] for m in members_idx])
-        units = [free[m].unit for m in members_idx]
-        kind = _classify(direction[local], values[members_idx], units)
-        labels = tuple(free[m].label for m in members_idx)
+        for other in [m for m in member_sets if m & members]:
+            members |= other
+            member_sets.remove(other)
+        member_sets.append(members)
+    for members in member_sets:
+        index = np.array(sorted(members))
+        units = [free[m].unit for m in index]
+        kind = _classify(physical[:, index], np.asarray(values, float)[index], units)
+        labels = tuple(free[m].label for m in index)
         unit = units[0] if kind == "sum" else "*".join(units) if kind == "product" else "/".join(units)
         found.append(
             Degeneracy(labels, kind, float("nan"), float("nan"), unit, _reason(kind, labels))
