@@ -1,0 +1,581 @@
+"""ngspice engine: run a SPICE deck (text) in ngspice's shared library, in a child process.
+
+Why a child process: the shared library keeps global state, a malformed deck can crash
+it, and a run can hang. Each :class:`NgspiceWorker` is one long-lived child process
+(started with the ``spawn`` method, which is safe on every platform) that loads the
+library once and then serves decks one at a time over a pipe; the parent waits for each
+answer with a timeout, and a hang or crash becomes a :class:`SimulationError` naming the
+deck, after which the child is stopped and a fresh one started on demand. Reusing the
+child avoids paying interpreter and library start-up (about a second) for each deck. As
+with any use of Python's ``spawn`` start method, a script that calls this module must
+keep its top-level code under ``if __name__ == "__main__":``.
+
+Inside the child, a small subclass of PySpice 1.5's ``NgSpiceShared`` keeps everything
+ngspice prints instead of treating every stderr line as an error (ngspice 42 and later
+print harmless notes on stderr, which PySpice 1.5 reports as failures). Whether a run
+failed is decided from its results: error lines (``Error``, ``aborted``, ``Timestep too
+small``), a missing transient plot, or a run that stopped before its ``.tran`` stop time.
+After every run the plots and the circuit are freed (``destroy all``, ``remcirc``), so
+memory does not grow from run to run.
+
+Sign conventions: the probe voltage is ``v(plus) - v(minus)`` (ground is node ``0``);
+a voltage source's branch current is SPICE's: the current entering its positive (first)
+node and flowing through it, which for the loop's current-sense source, oriented in loop
+order, is the loop current in the direction the loop is written.
+"""
+
+from __future__ import annotations
+
+import atexit
+import logging
+import multiprocessing
+import os
+import queue
+import re
+import threading
+from collections.abc import Sequence
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass
+from multiprocessing.connection import Connection
+from typing import Any
+
+import numpy as np
+
+from xcheck.circuit import Circuit
+from xcheck.errors import SimulationError
+from xcheck.waveform import Waveform
+
+#: What to install when the shared library cannot be loaded.
+INSTALL_HELP = (
+    "ngspice's shared library could not be loaded. Install it: Debian/Ubuntu "
+    "'apt-get install libngspice0-dev' (provides libngspice.so); macOS Homebrew "
+    "'brew install libngspice'; conda 'conda install -c conda-forge ngspice-lib'; or set "
+    "NGSPICE_LIBRARY_PATH to the full path of the library file (libngspice.so, "
+    "libngspice.dylib or ngspice.dll)"
+)
+
+#: Seconds allowed for a child process to start and load the library.
+START_TIMEOUT = 120.0
+
+#: Most ngspice lines quoted in an error message.
+MAX_MESSAGE_LINES = 10
+
+_ERROR_LINE = re.compile(
+    r"(^\s*error\b|\berror:|\baborted\b|timestep too small|\bfatal\b)",
+    re.IGNORECASE,
+)
+_TRAN_LINE = re.compile(r"^\s*\.tran\s+(\S+)\s+(\S+)", re.IGNORECASE | re.MULTILINE)
+
+
+@dataclass(frozen=True)
+class DeckRun:
+    """One deck to run and what to read back.
+
+    Attributes
+    ----------
+    deck_text
+        The whole deck, title line first, ``.end`` last.
+    probe
+        (plus node, minus node) of the probe voltage; ground is ``"0"``.
+    current_sense
+        Name of the voltage source whose branch current is the loop current, or None.
+    name
+        What to call the deck in messages (a file name or the fixture's title).
+    """
+
+    deck_text: str
+    probe: tuple[str, str]
+    current_sense: str | None = None
+    name: str = "deck"
+
+
+# --------------------------------------------------------------------------------------
+# Child process side
+# --------------------------------------------------------------------------------------
+
+
+def _quiet_shared_class() -> type:
+    """A subclass of PySpice's NgSpiceShared whose output callback only records lines."""
+    from PySpice.Spice.NgSpice.Shared import NgSpiceShared, ffi, ffi_string_utf8
+
+    class QuietNgSpiceShared(NgSpiceShared):
+        """Keeps stdout and stderr lines; never flags an error from stderr alone."""
+
+        @staticmethod
+        def _send_char(message_c: Any, ngspice_id: int, user_data: Any) -> int:
+            self = ffi.from_handle(user_data)
+            message = ffi_string_utf8(message_c)
+            if isinstance(message, bytes):
+                message = message.decode("utf-8", "replace")
+            prefix, _, content = message.partition(" ")
+            if prefix == "stderr":
+                self._stderr.append(content)
+            else:
+                self._stdout.append(content)
+            return 0
+
+    return QuietNgSpiceShared
+
+
+def _load_ngspice() -> Any:
+    """Load the shared library in this (child) process; SimulationError when missing."""
+    logging.getLogger("PySpice").setLevel(logging.CRITICAL + 1)
+    try:
+        cls = _quiet_shared_class()
+        return cls(ngspice_id=0, send_data=False)
+    except (OSError, ImportError) as exc:  # dlopen failure or PySpice missing
+        raise SimulationError(f"{INSTALL_HELP}. (Loading failed with: {exc})") from None
+
+
+def _version_of(shared: Any) -> str:
+    for line in shared.exec_command("version -f", join_lines=False):
+        match = re.search(r"ngspice-(\S+)", line)
+        if match:
+            return f"ngspice-{match.group(1)}"
+    return f"ngspice-{shared.ngspice_version}"
+
+
+def _error_lines(shared: Any) -> list[str]:
+    """ngspice's messages when any of them reports an error, else an empty list."""
+    lines = shared._stdout + shared._stderr
+    if not any(_ERROR_LINE.search(line) for line in lines):
+        return []
+    wanted = [line for line in shared._stdout if _ERROR_LINE.search(line)] + shared._stderr
+    unique = list(dict.fromkeys(line.strip() for line in wanted if line.strip()))
+    return unique[:MAX_MESSAGE_LINES]
+
+
+def _returned_code(call: Any, *args: Any) -> int:
+    """Call a PySpice method; PySpice raises NameError("... returned <code>") when the
+    library returns a non-zero code, turned back into that code here."""
+    try:
+        call(*args)
+    except NameError as exc:
+        match = re.search(r"returned (-?\d+)", str(exc))
+        return int(match.group(1)) if match else 1
+    return 0
+
+
+def _expected_stop(deck_text: str) -> float | None:
+    match = _TRAN_LINE.search(deck_text)
+    if match is None:
+        return None
+    try:
+        return float(match.group(2))
+    except ValueError:
+        return None
+
+
+def _vector(plot: dict[str, Any], node: str) -> np.ndarray | None:
+    if node == "0":
+        return None
+    for key in (node.lower(), f"v({node.lower()})"):
+        if key in plot:
+            return np.asarray(plot[key]._data, dtype=float)
+    raise KeyError(node)
+
+
+def _run_in_child(shared: Any, run: DeckRun) -> dict[str, Any]:
+    """Load, run, read back and free one deck. Raises SimulationError on failure."""
+    title = run.deck_text.splitlines()[0].strip() if run.deck_text.strip() else ""
+    label = f"deck {run.name!r}" + (f" ({title})" if title and title != run.name else "")
+    try:
+        rc = _returned_code(shared.load_circuit, run.deck_text)  # clears old output first
+        errors = _error_lines(shared)
+        if rc or errors:
+            raise SimulationError(
+                f"ngspice rejected {label}: " + ("; ".join(errors) or f"return code {rc}")
+            )
+        rc = _returned_code(shared.run)  # exec_command clears old output first
+        errors = _error_lines(shared)
+        plot_name = shared.last_plot
+        if rc or errors or not plot_name.startswith("tran"):
+            detail = "; ".join(errors) or (
+                f"return code {rc}" if rc else f"no transient results (last plot {plot_name!r})"
+            )
+            raise SimulationError(f"ngspice failed to run {label}: {detail}")
+        plot = shared.plot(None, plot_name)
+        time = np.asarray(plot["time"]._data, dtype=float)
+        stop = _expected_stop(run.deck_text)
+        if time.size < 2 or (stop is not None and time[-1] < stop * (1 - 1e-6)):
+            reached = time[-1] if time.size else 0.0
+            raise SimulationError(
+                f"ngspice stopped {label} early, at {reached:.6g} s of {stop} s"
+            )
+        try:
+            plus, minus = (_vector(plot, node) for node in run.probe)
+        except KeyError as exc:
+            raise SimulationError(
+                f"{label}: the probe node {exc.args[0]!r} is not in ngspice's results "
+                f"(vectors: {', '.join(sorted(plot))})"
+            ) from None
+        probe = (plus if plus is not None else 0.0) - (minus if minus is not None else 0.0)
+        current = None
+        if run.current_sense:
+            key = f"{run.current_sense.lower()}#branch"
+            if key not in plot:
+                raise SimulationError(
+                    f"{label}: no branch current {key!r} in ngspice's results "
+                    f"(vectors: {', '.join(sorted(plot))})"
+                )
+            current = np.asarray(plot[key]._data, dtype=float)
+        return {
+            "time": time,
+            "probe": np.broadcast_to(probe, time.shape).astype(float),
+            "current": current,
+            "warnings": [
+                line.strip() for line in shared._stdout + shared._stderr if "warning" in line.lower()
+            ],
+        }
+    finally:
+        shared.destroy()  # "destroy all": free every plot's vectors
+        shared.remove_circuit()  # "remcirc": free the circuit
+
+
+def _serve(conn: Connection) -> None:
+    """Child process main loop: load ngspice, then answer requests until told to stop."""
+    try:
+        shared = _load_ngspice()
+        conn.send(("ready", _version_of(shared)))
+    except SimulationError as exc:
+        conn.send(("missing", str(exc)))
+        conn.close()
+        return
+    while True:
+        try:
+            request = conn.recv()
+        except (EOFError, OSError):
+            return
+        if request is None:
+            return
+        try:
+            conn.send(("ok", _run_in_child(shared, request)))
+        except SimulationError as exc:
+            conn.send(("error", str(exc)))
+        except Exception as exc:  # noqa: BLE001 - report anything else as a failed run
+            conn.send(("error", f"deck {request.name!r}: {type(exc).__name__}: {exc}"))
+
+
+# --------------------------------------------------------------------------------------
+# Parent side
+# --------------------------------------------------------------------------------------
+
+
+class NgspiceWorker:
+    """One child process running ngspice; started on first use, restarted after a
+    hang or crash. Not thread-safe: use one worker per thread (see :class:`NgspicePool`)."""
+
+    def __init__(self) -> None:
+        self._process: multiprocessing.process.BaseProcess | None = None
+        self._conn: Connection | None = None
+        self._version = ""
+
+    @property
+    def pid(self) -> int | None:
+        """Process id of the child, or None when none is running."""
+        return self._process.pid if self._process is not None else None
+
+    @property
+    def version(self) -> str:
+        """ngspice version reported by the running child (``"ngspice-39"``)."""
+        self._ensure_started()
+        return self._version
+
+    def _ensure_started(self) -> None:
+        if self._process is not None and self._process.is_alive():
+            return
+        self.stop()
+        context = multiprocessing.get_context("spawn")
+        parent_conn, child_conn = context.Pipe()
+        process = context.Process(target=_serve, args=(child_conn,), daemon=True)
+        process.start()
+        child_conn.close()
+        self._process, self._conn = process, parent_conn
+        if not parent_conn.poll(START_TIMEOUT):
+            self.stop()
+            raise SimulationError(
+                f"ngspice did not start within {START_TIMEOUT:g} s; {INSTALL_HELP}"
+            )
+        try:
+            status, payload = parent_conn.recv()
+        except EOFError:
+            code = process.exitcode
+            self.stop()
+            raise SimulationError(
+                f"the ngspice child process exited during start-up (exit code {code}). "
+                "When xcheck is called from a script, the script's top-level code must sit "
+                "under 'if __name__ == \"__main__\":' (Python's spawn start method re-imports "
+                f"it in the child). Otherwise the library may be broken: {INSTALL_HELP}"
+            ) from None
+        if status != "ready":
+            self.stop()
+            raise SimulationError(payload)
+        self._version = payload
+
+    def run(self, run: DeckRun, timeout: float = 60.0) -> Waveform:
+        """Run one deck and return its probe voltage (and loop current).
+
+        Parameters
+        ----------
+        run
+            The deck and what to read back.
+        timeout
+            Seconds the run may take once the child is up; beyond it the child is
+            stopped and SimulationError raised.
+
+        Returns
+        -------
+        Waveform
+            ngspice's own time points; ``engine="ngspice"``.
+
+        Raises
+        ------
+        SimulationError
+            ngspice missing, deck rejected, run failed, hung or crashed.
+        """
+        self._ensure_started()
+        assert self._conn is not None and self._process is not None
+        try:
+            self._conn.send(run)
+        except (BrokenPipeError, OSError):
+            self.stop()
+            raise SimulationError(f"deck {run.name!r}: the ngspice process is gone") from None
+        if not self._conn.poll(timeout):
+            self.stop(force=True)
+            raise SimulationError(
+                f"deck {run.name!r}: ngspice did not finish within {timeout:g} s and was "
+                "stopped; check the deck's .tran stop time and maximum step, or allow a "
+                "longer timeout"
+            )
+        try:
+            status, payload = self._conn.recv()
+        except (EOFError, OSError):
+            self._process.join(5)
+            code = self._process.exitcode
+            self.stop()
+            raise SimulationError(
+                f"deck {run.name!r}: ngspice crashed during the run (exit code {code})"
+            ) from None
+        if status != "ok":
+            raise SimulationError(payload)
+        notes = tuple(f"ngspice: {line}" for line in dict.fromkeys(payload["warnings"]))
+        return Waveform(
+            time=payload["time"],
+            probe_voltage=payload["probe"],
+            loop_current=payload["current"],
+            engine="ngspice",
+            notes=notes,
+        )
+
+    def stop(self, force: bool = False) -> None:
+        """Stop the child process: ask it to exit (unless ``force``), then kill it if it
+        is still there after a second."""
+        process, conn = self._process, self._conn
+        self._process, self._conn = None, None
+        if conn is not None:
+            try:
+                if not force and process is not None and process.is_alive():
+                    conn.send(None)
+            except (BrokenPipeError, OSError):
+                pass
+            conn.close()
+        if process is not None:
+            if not force:
+                process.join(1.0)
+            if process.is_alive():
+                process.kill()
+            process.join(5.0)
+            if not process.is_alive():
+                process.close()
+
+
+class NgspicePool:
+    """Several :class:`NgspiceWorker` children that run many decks in parallel.
+
+    Use as a context manager so the children are stopped afterwards::
+
+        with NgspicePool(max_workers=2) as pool:
+            results = pool.run_all(runs)
+    """
+
+    def __init__(self, max_workers: int | None = None) -> None:
+        count = max_workers if max_workers is not None else (os.cpu_count() or 1)
+        if count < 1:
+            raise ValueError(f"max_workers must be at least 1, got {max_workers!r}")
+        self._workers = [NgspiceWorker() for _ in range(count)]
+        self._free: queue.SimpleQueue[NgspiceWorker] = queue.SimpleQueue()
+        for worker in self._workers:
+            self._free.put(worker)
+
+    def __enter__(self) -> "NgspicePool":
+        return self
+
+    def __exit__(self, *exc_info: object) -> None:
+        self.close()
+
+    def close(self) -> None:
+        """Stop every child process."""
+        for worker in self._workers:
+            worker.stop()
+
+    def run_all(
+        self, runs: Sequence[DeckRun], timeout: float = 60.0
+    ) -> list[Waveform | SimulationError]:
+        """Run every deck; failures are returned in place, not raised.
+
+        Parameters
+        ----------
+        runs
+            Decks to run.
+        timeout
+            Seconds allowed for each run.
+
+        Returns
+        -------
+        list
+            For each run, in order, its :class:`Waveform` or the
+            :class:`SimulationError` saying why it failed.
+        """
+
+        def one(run: DeckRun) -> Waveform | SimulationError:
+            worker = self._free.get()
+            try:
+                return worker.run(run, timeout)
+            except SimulationError as exc:
+                return exc
+            finally:
+                self._free.put(worker)
+
+        if not runs:
+            return []
+        with ThreadPoolExecutor(max_workers=min(len(self._workers), len(runs))) as executor:
+            return list(executor.map(one, runs))
+
+
+def run_decks(
+    runs: Sequence[DeckRun], *, max_workers: int | None = None, timeout: float = 60.0
+) -> list[Waveform | SimulationError]:
+    """Run many decks on a temporary pool of ngspice child processes.
+
+    Parameters
+    ----------
+    runs
+        Decks to run.
+    max_workers
+        Child processes to use (default: the number of CPUs, at most one per deck).
+    timeout
+        Seconds allowed for each run.
+
+    Returns
+    -------
+    list
+        One :class:`Waveform` or :class:`SimulationError` per run, in order.
+    """
+    count = min(max_workers or os.cpu_count() or 1, max(len(runs), 1))
+    with NgspicePool(count) as pool:
+        return pool.run_all(runs, timeout)
+
+
+_shared_worker: NgspiceWorker | None = None
+_shared_lock = threading.Lock()
+
+
+def _default_worker() -> NgspiceWorker:
+    global _shared_worker
+    if _shared_worker is None:
+        _shared_worker = NgspiceWorker()
+        atexit.register(_shared_worker.stop)
+    return _shared_worker
+
+
+def run_deck(
+    deck_text: str,
+    *,
+    probe: tuple[str, str],
+    current_sense: str | None = None,
+    name: str = "deck",
+    timeout: float = 60.0,
+) -> Waveform:
+    """Run one deck in the module's shared ngspice child process.
+
+    Parameters
+    ----------
+    deck_text
+        The deck (title line first, ``.tran`` and ``.end`` included).
+    probe
+        (plus node, minus node): the probe voltage is ``v(plus) - v(minus)``.
+    current_sense
+        Voltage source whose branch current is returned as the loop current, or None.
+    name
+        The deck's name for messages (file or fixture).
+    timeout
+        Seconds the run may take (the child's one-off start-up is not counted); a
+        longer run is stopped and reported.
+
+    Returns
+    -------
+    Waveform
+        ngspice's time points, probe voltage and loop current; ``engine="ngspice"``.
+
+    Raises
+    ------
+    SimulationError
+        ngspice missing (the message says what to install), deck rejected (ngspice's
+        error lines quoted), run failed, hung past ``timeout`` or crashed.
+    """
+    with _shared_lock:
+        return _default_worker().run(DeckRun(deck_text, tuple(probe), current_sense, name), timeout)
+
+
+def simulate_ngspice(
+    circuit: Circuit, *, stop_time: float | None = None, timeout: float = 60.0
+) -> Waveform:
+    """Write ``circuit``'s deck and run it in ngspice.
+
+    Parameters
+    ----------
+    circuit
+        The circuit.
+    stop_time
+        End of the run in seconds; None lets :func:`xcheck.timing.transient_settings`
+        choose it.
+    timeout
+        Seconds the run may take.
+
+    Returns
+    -------
+    Waveform
+        ``engine="ngspice"``; ``notes`` include the time step used.
+    """
+    from xcheck.deck import deck_names, write_deck
+    from xcheck.timing import transient_settings
+
+    deck = write_deck(circuit, stop_time=stop_time)
+    names = deck_names(circuit)
+    settings = transient_settings(circuit, stop_time=stop_time)
+    waveform = run_deck(
+        deck,
+        probe=names.probe,
+        current_sense=names.current_sense,
+        name=circuit.source or circuit.title,
+        timeout=timeout,
+    )
+    notes = (
+        f"trapezoidal integration, maximum step {settings.max_step:.4g} s, "
+        f"stop {settings.stop:.4g} s",
+        *settings.notes,
+        *waveform.notes,
+    )
+    return Waveform(waveform.time, waveform.probe_voltage, waveform.loop_current, "ngspice", notes)
+
+
+def ngspice_version() -> str:
+    """The version of the ngspice shared library (``"ngspice-39"``).
+
+    Raises
+    ------
+    SimulationError
+        When the library cannot be loaded (the message says what to install).
+    """
+    with _shared_lock:
+        return _default_worker().version
