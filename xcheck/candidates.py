@@ -197,6 +197,10 @@ def default_ladder(fixture: Fixture) -> list[Candidate]:
         )
     )
     free = [extra] + _unknown_free(fixture, measured_set) + _reactive_free(fixture, measured_set)
+    if len(_dedupe(free)) == 1:
+        # Nothing is unknown and both reactive values are measured: this rung would
+        # repeat "extra-loss" exactly, so the ladder stops there.
+        return candidates
     candidates.append(
         _checked(
             fixture,

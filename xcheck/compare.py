@@ -258,7 +258,7 @@ def _ngspice_curve(circuit, fit: FitResult, obs: Observation) -> tuple[np.ndarra
     from xcheck.engines.ngspice import simulate_ngspice
 
     if obs.kind == "trace":
-        shift = fit.nuisance["shift"][0] * obs.period * 1e-3
+        shift = fit.nuisance["shift"][0]
         times = np.maximum(obs.time - shift, 0.0)
         stop = float(times[-1]) * 1.0001
         wave = simulate_ngspice(circuit, stop_time=stop)
@@ -358,6 +358,28 @@ def _loop_findings(fixture: Fixture, outcomes: list[CandidateOutcome]) -> list[s
     return findings
 
 
+def _sentence(text: str) -> str:
+    text = text.strip()
+    if not text:
+        return text
+    text = text[0].upper() + text[1:]
+    return text if text[-1] in ".!?" else text + "."
+
+
+def _against_label(fixture: Fixture, value) -> str:
+    """'' or ' (label 470 µH: -3.8 %, inside its 10 % tolerance)' for a part's own value."""
+    part_name, field_name = value.key
+    part = fixture.parts.get(part_name)
+    if part is None or field_name != "value" or not part.nominal:
+        return ""
+    change = value.value / part.nominal - 1.0
+    text = f" (label {format_eng(part.nominal, value.unit)}: {change:+.1%}"
+    if part.tolerance is not None:
+        inside = abs(change) <= part.tolerance
+        text += f", {'inside' if inside else 'OUTSIDE'} its {part.tolerance:.0%} tolerance"
+    return text + ")"
+
+
 def write_verdict(fixture: Fixture, measured: Measured, outcomes: list[CandidateOutcome],
                   loop_findings: tuple[str, ...]) -> str:
     """One paragraph a reviewer can read: best candidate, the fitted extra, how much
@@ -376,7 +398,7 @@ def write_verdict(fixture: Fixture, measured: Measured, outcomes: list[Candidate
             continue
         parts.append(
             f"Fitted {value.label} = {format_eng(value.value, value.unit)} ± "
-            f"{format_eng(value.stderr, value.unit)}."
+            f"{format_eng(value.stderr, value.unit)}{_against_label(fixture, value)}."
         )
     for group in best.fit.degeneracies:
         if group.combination in ("sum", "product") and math.isfinite(group.value):
@@ -399,6 +421,7 @@ def write_verdict(fixture: Fixture, measured: Measured, outcomes: list[Candidate
             )
     parts.extend(loop_findings)
     parts.extend(measured.findings)
+    parts = [_sentence(p) for p in parts]
     if best.engines_disagree:
         parts.append(
             f"Warning: ngspice and theory differ by {best.engine_disagreement:.2%} of the "

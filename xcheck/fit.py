@@ -9,9 +9,10 @@ never an exception.
 
 Every candidate also fits three nuisance values, so that no candidate loses merely
 because of the instrument: ``gain`` (probe attenuation or vertical-scale error and the
-true initial voltage), ``offset`` (DC offset of the scope channel) and ``shift`` (error
-in the event time, seconds). For a peak table the nuisance values are the amplitude
-scale and the time origin.
+true initial voltage; dimensionless), ``offset`` (DC offset of the scope channel, V) and
+``shift`` (error in the event time, s). For a peak table the nuisance values are the
+``amplitude`` scale (dimensionless) and the ``time_origin`` (s) of the first extremum's
+model time in the table's time base. ``FitResult.nuisance`` holds them in these units.
 """
 
 from __future__ import annotations
@@ -239,7 +240,8 @@ def _fit(fixture: Fixture, candidate: Candidate, obs: Observation,
     scale = np.maximum(np.abs(start), (upper - lower) * 1e-3)
     scale = np.where(scale > 0, scale, 1.0)
     sigma = np.broadcast_to(np.asarray(obs.sigma, float), obs.voltage.shape)
-    residual_fn, nuisance_start, nuisance_bounds, names = _residual_function(model, obs, sigma, start)
+    residual_fn, nuisance_start, nuisance_bounds, names, to_si = _residual_function(
+        model, obs, sigma, start)
     x0 = np.concatenate([start / scale, nuisance_start])
     lo = np.concatenate([lower / scale, nuisance_bounds[0]])
     hi = np.concatenate([upper / scale, nuisance_bounds[1]])
@@ -273,8 +275,12 @@ def _fit(fixture: Fixture, candidate: Candidate, obs: Observation,
         FittedValue(f.label, f.key, float(v), float(s), f.unit, float(f.start), f.lower, f.upper)
         for f, v, s in zip(free, physical, stderr[:n_free])
     )
-    nuisance = {name: (float(v), float(s)) for name, v, s in
-                zip(names, solution.x[n_free:], stderr[n_free:])}
+    nuisance_scale, nuisance_origin = to_si
+    nuisance = {
+        name: (float(v * f + o), float(s * abs(f)))
+        for name, v, s, f, o in zip(names, solution.x[n_free:], stderr[n_free:],
+                                    nuisance_scale, nuisance_origin)
+    }
     model_values = residual_fn.model_values(physical, solution.x[n_free:])  # type: ignore[attr-defined]
     residual_volts = obs.voltage - model_values
     rss_volts = float(np.sum(residual_volts**2))
@@ -356,7 +362,8 @@ def _trace_residuals(model: _Model, obs: Observation, sigma: np.ndarray, start: 
         return values(physical, nuisance)
 
     residuals.model_values = model_values  # type: ignore[attr-defined]
-    return residuals, nuisance_start, bounds, ("gain", "offset", "shift")
+    to_si = (np.array([1.0, amplitude, shift_scale]), np.zeros(3))
+    return residuals, nuisance_start, bounds, ("gain", "offset", "shift"), to_si
 
 
 def _peak_residuals(model: _Model, obs: Observation, sigma: np.ndarray, start: np.ndarray):
@@ -384,7 +391,8 @@ def _peak_residuals(model: _Model, obs: Observation, sigma: np.ndarray, start: n
         return predicted(physical, nuisance)[1]
 
     residuals.model_values = model_values  # type: ignore[attr-defined]
-    return residuals, nuisance_start, bounds, ("amplitude", "time_origin")
+    to_si = (np.array([1.0, time_sigma]), np.array([0.0, origin0]))
+    return residuals, nuisance_start, bounds, ("amplitude", "time_origin"), to_si
 
 
 ResidualFunction = Callable[[np.ndarray, np.ndarray], np.ndarray]

@@ -59,7 +59,10 @@ class Measured:
     alignment
         Event time, baseline, noise, droop and inversion (traces only).
     findings
-        Plain-words findings for the verdict (clipping, inversion, envelope, ...).
+        Plain-words findings worth a place in the verdict (clipping, inversion, an
+        envelope that is not one exponential, flagged extrema).
+    notes
+        Every remark, for the report's measured-side section.
     """
 
     kind: str
@@ -71,6 +74,7 @@ class Measured:
     estimate: RingdownEstimate
     alignment: Alignment | None
     findings: tuple[str, ...]
+    notes: tuple[str, ...] = ()
 
     @property
     def damped_frequency_hz(self):
@@ -132,6 +136,7 @@ class Measured:
             "effective_samples": _finite(est.effective_samples),
             "samples_excluded": int(self.excluded.sum()),
             "findings": list(self.findings),
+            "notes": list(self.notes),
         }
         if self.alignment is not None:
             a = self.alignment
@@ -201,10 +206,9 @@ def measure(
     if peaks is not None:
         table = read_peaks(peaks)
         estimate = estimate_from_peaks(table.time, table.voltage, table.uncertainty)
-        findings = tuple(estimate.envelope.findings)
         return Measured("peaks", str(peaks), table.time - table.time[0], table.voltage,
                         np.zeros(table.time.size, bool), table.uncertainty, estimate, None,
-                        findings)
+                        _envelope_findings(estimate), tuple(estimate.envelope.findings))
     raw = read_trace(trace, column=column)
     aligned, alignment = align_trace(raw, event_time=event_time, expect=fixture.response,
                                      expected_sign=_expected_sign(fixture))
@@ -212,16 +216,26 @@ def measure(
     noise = alignment.noise_rms if alignment.noise_rms and math.isfinite(alignment.noise_rms) else None
     estimate = estimate_ringdown(aligned.time, aligned.voltage, noise_sigma=noise,
                                  exclude=excluded, resolution=raw.resolution)
-    findings = list(alignment.notes)
+    findings = []
     if excluded.any():
         findings.append(f"{int(excluded.sum())} clipped samples were left out of every fit.")
     if alignment.inverted:
         findings.append("The probe looks inverted: the trace's polarity is opposite to the fixture's.")
-    if abs(alignment.droop_per_s) > 0 and alignment.pre_event_samples > 10:
-        findings.append(
-            f"Before the event the voltage drooped at {format_eng(alignment.droop_per_s, 'V')}/s "
-            "(leakage and probe loading)."
+    notes = list(alignment.notes)
+    if alignment.pre_event_samples > 10:
+        notes.append(
+            f"Before the event the voltage drifted at {format_eng(alignment.droop_per_s, 'V')}/s "
+            "(a charged capacitor droops through leakage and probe loading); pre-event noise "
+            f"{format_eng(alignment.noise_rms, 'V')} RMS, baseline {format_eng(alignment.baseline, 'V')}."
         )
-    findings.extend(estimate.envelope.findings)
+    notes.extend(estimate.envelope.findings)
+    findings.extend(_envelope_findings(estimate))
     return Measured("trace", str(trace), aligned.time, aligned.voltage, excluded, None, estimate,
-                    alignment, tuple(findings))
+                    alignment, tuple(findings), tuple(notes))
+
+
+def _envelope_findings(estimate: RingdownEstimate) -> tuple[str, ...]:
+    """Envelope findings for the verdict: only when something deviates."""
+    if estimate.envelope_exponential and not estimate.flagged_extrema:
+        return ("The extrema decay as one exponential within their uncertainties.",)
+    return tuple(estimate.envelope.findings)

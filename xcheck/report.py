@@ -48,6 +48,7 @@ from xcheck.values import format_eng
 SCHEMA = "xcheck-summary"
 SCHEMA_VERSION = 1
 FIGURES = ("overlay.png", "residuals.png", "envelope.png")
+NUISANCE_UNITS = {"offset": "V", "shift": "s", "time_origin": "s"}
 
 
 def _finite(value: Any) -> Any:
@@ -190,9 +191,14 @@ def markdown(comparison: Comparison, data: dict[str, Any]) -> str:
                 f"{format_eng(value.stderr, value.unit, 2)} | {format_eng(value.start, value.unit)} | {note} |"
             )
         for name, (value, stderr) in outcome.fit.nuisance.items():
-            lines.append(f"| {outcome.name} | {name} (nuisance) | {_num(value)} | {_num(stderr, 2)} | | |")
-    lines += ["", "Nuisance values: gain (probe attenuation and initial voltage), offset "
-              "(scope DC offset, in units of the amplitude), shift (event time, in 1/1000 of a period).", ""]
+            unit = NUISANCE_UNITS.get(name, "")
+            shown = (f"{format_eng(value, unit, 4)} | {format_eng(stderr, unit, 2)}" if unit
+                     else f"{_num(value)} | {_num(stderr, 2)}")
+            lines.append(f"| {outcome.name} | {name} (nuisance) | {shown} | | |")
+    lines += ["", "Nuisance values, fitted in every candidate so that none loses to the instrument: "
+              "gain (probe attenuation and true initial voltage, 1 = as stated), offset (scope DC "
+              "offset, V), shift (error of the detected event time, s); for a peak table, amplitude "
+              "(1 = as predicted) and time_origin (s).", ""]
     lines += ["## What this measurement cannot separate", ""]
     any_group = False
     for outcome in comparison.outcomes:
@@ -233,7 +239,7 @@ def _measured_lines(measured: dict[str, Any]) -> list[str]:
         lines.append(f"| {key} | {_num(item.get('value'), 6)} {unit} | {_num(item.get('stderr'), 3)} {unit} |")
     lines += ["", f"- envelope is one exponential: {'yes' if measured.get('envelope_exponential') else 'no'}",
               f"- flagged extrema (0-based, time order): {measured.get('flagged_extrema') or 'none'}"]
-    for finding in measured.get("findings", []):
+    for finding in measured.get("notes", []) or measured.get("findings", []):
         lines.append(f"- {finding}")
     return lines
 

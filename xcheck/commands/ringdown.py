@@ -1,0 +1,338 @@
+"""``xcheck ringdown TRACE``: frequency and decay of a measured ring-down, with uncertainties.
+
+A waveform file is read (:func:`xcheck.trace.read_trace`), the event found and the time
+axis moved to it (:func:`xcheck.align.align_trace`), clipped samples left out, and the
+ring-down estimated (:func:`xcheck.ringdown.estimate_ringdown`) with the pre-event noise
+as the noise level. With ``--peaks`` the file is a table of extrema read off cursors
+(:func:`xcheck.trace.read_peaks`, :func:`xcheck.ringdown.estimate_from_peaks`).
+
+Prints the table (value +- standard error, Cramér-Rao bound) in engineering notation,
+the envelope findings and notes; writes a PNG (the trace with the fitted model; the
+extrema on a logarithmic axis with the fitted envelope, flagged extrema marked) and,
+with ``--json``, the numbers in SI units. Exit status 2 on bad input.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import os
+import tempfile
+from collections.abc import Callable
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+from xcheck.errors import ValueParseError, XcheckError
+from xcheck.ringdown import DerivedCircuit, Estimate, RingdownEstimate, derive_circuit
+from xcheck.ringdown import estimate_from_peaks, estimate_ringdown
+from xcheck.values import format_eng, parse_value
+
+if TYPE_CHECKING:
+    from xcheck.align import Alignment
+
+#: Folder (relative to the current directory) the PNG goes to without ``--out``.
+DEFAULT_ROOT = Path("reports")
+PNG_NAME = "ringdown.png"
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    """Register the ``ringdown`` subcommand's arguments."""
+    parser.add_argument("trace", type=Path, metavar="TRACE", help="waveform file (CSV, optionally .gz) or, with --peaks, a peak table")
+    parser.add_argument("--column", default=None, help="channel to use: header name (e.g. 'ch1') or 0-based index")
+    parser.add_argument("--time-column", default=None, help="time (or sample-number) column, by name or 0-based index")
+    parser.add_argument("--peaks", action="store_true", help="TRACE is a table of extrema read off scope cursors")
+    parser.add_argument("--json", type=Path, metavar="FILE", default=None, help="also write the numbers to FILE (JSON, SI units)")
+    parser.add_argument("--out", type=Path, metavar="PNG", default=None,
+                        help="figure to write (default: reports/<trace name>/ringdown/ringdown.png)")
+    parser.add_argument("--event-time", default=None, metavar="T",
+                        help="event time in the file's time base, e.g. '1.5m' (default: found from the trace)")
+    parser.add_argument("--expect", choices=("natural", "step"), default="natural",
+                        help="what the event is: a charged capacitor released (natural) or a step (default natural)")
+    parser.add_argument("--modes", type=int, default=1, metavar="N", help="damped sinusoids to fit (default 1)")
+    parser.add_argument("--capacitance", default=None, metavar="C",
+                        help="known loop capacitance, e.g. '47u': reports the implied L and series R")
+    parser.add_argument("--inductance", default=None, metavar="L",
+                        help="known loop inductance, e.g. '10u': reports the implied C and series R")
+    parser.add_argument("--capacitance-stderr", default="0", metavar="dC", help="standard error of --capacitance")
+    parser.add_argument("--inductance-stderr", default="0", metavar="dL", help="standard error of --inductance")
+
+
+def _value(option: str, text: str | None, unit: str) -> float | None:
+    if text is None:
+        return None
+    try:
+        return parse_value(text, unit=unit)
+    except ValueParseError as exc:
+        raise XcheckError(f"{option}: {exc}") from None
+
+
+def _index_or_name(text: str | None) -> str | int | None:
+    if text is None:
+        return None
+    return int(text) if text.strip().lstrip("-").isdigit() else text
+
+
+def run(args: argparse.Namespace) -> int:
+    """Read, align, estimate, print, write the figure (and JSON); return 0."""
+    if args.modes < 1:
+        raise XcheckError(f"--modes: expected 1 or more damped sinusoids, got {args.modes}")
+    event_time = _value("--event-time", args.event_time, "s")
+    capacitance = _value("--capacitance", args.capacitance, "F")
+    inductance = _value("--inductance", args.inductance, "H")
+    c_err = _value("--capacitance-stderr", args.capacitance_stderr, "F") or 0.0
+    l_err = _value("--inductance-stderr", args.inductance_stderr, "H") or 0.0
+    for option, number in (("--capacitance", capacitance), ("--inductance", inductance)):
+        if number is not None and number <= 0:
+            raise XcheckError(f"{option}: expected a positive value, got {number!r}")
+    if c_err < 0 or l_err < 0:
+        raise XcheckError("--capacitance-stderr/--inductance-stderr: expected zero or a positive value")
+    context: list[str] = []
+    if args.peaks:
+        from xcheck.trace import read_peaks
+
+        table = read_peaks(args.trace)
+        estimate = estimate_from_peaks(table.time, table.voltage, table.uncertainty, source=table.source)
+        measured = (np.asarray(table.time), np.asarray(table.voltage), None)
+        context.append(f"peak table {table.source}: {len(table)} extrema")
+        alignment_json = None
+    else:
+        from xcheck.align import align_trace
+        from xcheck.trace import read_trace
+
+        trace = read_trace(args.trace, column=_index_or_name(args.column), time_column=_index_or_name(args.time_column))
+        aligned, alignment = align_trace(trace, event_time=event_time, expect=args.expect)
+        noise = alignment.noise_rms if math.isfinite(alignment.noise_rms) and alignment.noise_rms > 0 else None
+        estimate = estimate_ringdown(
+            aligned.time, aligned.voltage, noise_sigma=noise, exclude=aligned.clipped,
+            modes=args.modes, resolution=trace.resolution, source=trace.source,
+        )
+        measured = (np.asarray(aligned.time), np.asarray(aligned.voltage), np.asarray(aligned.clipped))
+        context += _alignment_lines(trace.source, trace.column, alignment, int(np.sum(aligned.clipped)))
+        alignment_json = {
+            "event_time_s": alignment.event_time,
+            "baseline_volts": alignment.baseline,
+            "noise_rms_volts": alignment.noise_rms,
+            "droop_volts_per_s": alignment.droop_per_s,
+            "inverted": bool(alignment.inverted),
+            "manual": bool(alignment.manual),
+            "pre_event_samples": int(alignment.pre_event_samples),
+            "notes": list(alignment.notes),
+        }
+    derived = None
+    if capacitance is not None or inductance is not None:
+        derived = derive_circuit(estimate, capacitance=capacitance, inductance=inductance,
+                                 capacitance_stderr=c_err, inductance_stderr=l_err)
+    png = args.out or DEFAULT_ROOT / args.trace.name.split(".")[0] / "ringdown" / PNG_NAME
+    _atomic_write(png, lambda tmp: write_figure(tmp, estimate, *measured, title=str(args.trace)))
+    written = [png]
+    if args.json is not None:
+        data = estimate.to_json()
+        data["source"] = str(args.trace)
+        if alignment_json is not None:
+            data["alignment"] = alignment_json
+        if derived is not None:
+            data["derived"] = derived.to_json()
+        text = json.dumps(data, indent=2, allow_nan=True)
+        _atomic_write(args.json, lambda tmp: tmp.write_text(text + "\n", encoding="utf-8"))
+        written.append(args.json)
+    print(summary_text(estimate, derived, context, written))
+    return 0
+
+
+def _alignment_lines(source: str, column: str, a: Alignment, clipped: int) -> list[str]:
+    lines = [f"trace {source}, channel {column}"]
+    how = "given" if a.manual else "found"
+    lines.append(
+        f"event at {format_eng(a.event_time, 's', 4)} ({how}); pre-event level "
+        f"{format_eng(a.baseline, 'V')}, noise {format_eng(a.noise_rms, 'V')} rms, "
+        f"droop {format_eng(a.droop_per_s, 'V')}/s"
+    )
+    if a.inverted:
+        lines.append("the first swing has the opposite sign to the one expected: inverted probe or channel?")
+    if clipped:
+        lines.append(f"{clipped} clipped samples after the event are left out of the fit")
+    lines += list(a.notes)
+    return lines
+
+
+def _digits(value: float, stderr: float) -> int:
+    """Significant digits that show ``value`` down to two digits of its standard error."""
+    if not (math.isfinite(value) and math.isfinite(stderr)) or value == 0 or stderr <= 0:
+        return 4
+    return int(min(max(math.floor(math.log10(abs(value))) - math.floor(math.log10(stderr)) + 2, 3), 12))
+
+
+def _row(label: str, item: Estimate | None, unit: str) -> list[str] | None:
+    if item is None:
+        return None
+    value = format_eng(item.value, unit, _digits(item.value, item.stderr))
+    err = format_eng(item.stderr, unit, 2) if math.isfinite(item.stderr) else "n/a"
+    crb = format_eng(item.crb, unit, 2) if item.crb is not None else "-"
+    return [label, value, "± " + err, crb]
+
+
+def table_rows(estimate: RingdownEstimate, derived: DerivedCircuit | None) -> list[list[str]]:
+    """Rows of the printed table: quantity, value, standard error, sqrt(Cramér-Rao bound)."""
+    rows = [
+        _row("damped frequency f_d", estimate.damped_frequency, "Hz"),
+        _row("neper frequency alpha", estimate.neper_frequency, "Np/s"),
+        _row("angular frequency omega_d", estimate.angular_frequency, "rad/s"),
+        _row("initial voltage v(0)", estimate.initial_volts, "V"),
+        _row("amplitude A", estimate.amplitude, "V"),
+        _row("phase phi", estimate.phase, "rad"),
+        _row("offset", estimate.offset, "V"),
+    ]
+    for i, mode in enumerate(estimate.extra_modes, 2):
+        rows += [
+            _row(f"mode {i}: f_d", mode.damped_frequency, "Hz"),
+            _row(f"mode {i}: alpha", mode.neper_frequency, "Np/s"),
+            _row(f"mode {i}: amplitude", mode.amplitude, "V"),
+        ]
+    if derived is not None:
+        rows += [
+            _row("natural frequency f0", derived.natural_frequency, "Hz"),
+            _row("damping ratio zeta", derived.damping_ratio, ""),
+            _row("quality factor Q", derived.quality_factor, ""),
+            _row("capacitance C", derived.capacitance, "F"),
+            _row("inductance L", derived.inductance, "H"),
+            _row("series resistance R", derived.resistance, "ohm"),
+        ]
+    return [r for r in rows if r is not None]
+
+
+def summary_text(
+    estimate: RingdownEstimate, derived: DerivedCircuit | None, context: list[str], written: list[Path]
+) -> str:
+    """Everything ``xcheck ringdown`` prints."""
+    header = ["quantity", "value", "std. error", "CRB"]
+    rows = table_rows(estimate, derived)
+    widths = [max(len(r[i]) for r in rows + [header]) for i in range(4)]
+    lines = list(context)
+    lines.append(f"method: {estimate.method}")
+    lines.append(
+        f"samples used {estimate.samples_used}, excluded {estimate.samples_excluded}, "
+        f"effective {estimate.effective_samples:.0f}; noise {format_eng(estimate.noise_sigma, 'V')} "
+        f"({estimate.noise_source}); residual rms {format_eng(estimate.residual_rms, 'V')}"
+    )
+    lines.append("")
+    lines.append("  ".join(h.ljust(w) for h, w in zip(header, widths)))
+    for r in rows:
+        lines.append("  ".join(c.ljust(w) for c, w in zip(r, widths)))
+    lines.append("(CRB: square root of the Cramér-Rao bound for white noise of the stated level)")
+    lines.append("")
+    verdict = "one exponential" if estimate.envelope_exponential else "NOT one exponential"
+    lines.append(f"envelope: {verdict}; flagged extrema: {estimate.flagged_extrema or 'none'}")
+    lines += ["  " + f for f in estimate.envelope.findings]
+    if estimate.alternate is not None:
+        alt = estimate.alternate
+        which = "with" if estimate.excludes_flagged else "without"
+        lines.append(
+            f"  {which} the flagged extrema: f_d {format_eng(alt.damped_frequency.value, 'Hz', 6)} "
+            f"± {format_eng(alt.damped_frequency.stderr, 'Hz', 2)}, alpha "
+            f"{format_eng(alt.neper_frequency.value, 'Np/s', 5)} ± {format_eng(alt.neper_frequency.stderr, 'Np/s', 2)}"
+        )
+    for note in estimate.notes + (derived.notes if derived else ()):
+        lines.append(f"note: {note}")
+    if not estimate.success:
+        lines.append("warning: the fit did not converge cleanly; treat the numbers with doubt")
+    lines.append("wrote " + ", ".join(str(p) for p in written))
+    return "\n".join(lines)
+
+
+def write_figure(
+    path: Path,
+    estimate: RingdownEstimate,
+    time: np.ndarray,
+    voltage: np.ndarray,
+    excluded: np.ndarray | None,
+    *,
+    title: str,
+) -> None:
+    """Two panels: the data with the fitted model; the extrema's envelope on a log axis.
+
+    Readable in greyscale: the data are light grey, the model a black dashed line, used
+    extrema open circles, flagged extrema filled black triangles with their index,
+    excluded (clipped) samples small crosses.
+    """
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    from xcheck.figures import time_scale
+
+    span = float(np.max(time)) if len(time) else 1.0
+    factor, prefix = time_scale(max(span, 1e-15))
+    fig, (top, bottom) = plt.subplots(2, 1, figsize=(8.0, 6.4), dpi=110, gridspec_kw={"height_ratios": [3, 2]})
+    peaks = excluded is None
+    dense = np.linspace(min(0.0, float(np.min(time))), float(np.max(time)), 2000)
+    if not peaks:  # a peak table's readings are drawn below as the extrema
+        top.plot(time * factor, voltage, color="#b0b0b0", linewidth=0.8, label="measured")
+        if excluded.any():
+            top.plot(time[excluded] * factor, voltage[excluded], linestyle="none", marker="x",
+                     markersize=3, color="#555555", label="excluded (clipped)")
+    top.plot(dense * factor, estimate.model(dense), color="black", linestyle="--", linewidth=1.1,
+             label="fitted model")
+    top.axhline(estimate.offset.value, color="#777777", linestyle=":", linewidth=0.8)
+    top.set_ylabel("voltage (V)")
+    top.set_title(
+        f"{title}: f_d = {format_eng(estimate.damped_frequency.value, 'Hz', 5)}, "
+        f"alpha = {format_eng(estimate.neper_frequency.value, 'Np/s', 4)}",
+        fontsize=9,
+    )
+    et = np.asarray(estimate.extrema_time)
+    ev = np.abs(np.asarray(estimate.extrema_value) - estimate.offset.value)
+    flagged = np.zeros(len(et), dtype=bool)
+    flagged[estimate.flagged_extrema] = True
+    for axis, values in ((top, np.asarray(estimate.extrema_value)), (bottom, ev)):
+        axis.plot(et[~flagged] * factor, values[~flagged], linestyle="none", marker="o", markersize=5,
+                  markerfacecolor="none", markeredgecolor="black", label="readings used" if peaks else "extrema used")
+        if flagged.any():
+            axis.plot(et[flagged] * factor, values[flagged], linestyle="none", marker="^", markersize=8,
+                      color="black", label="flagged readings" if peaks else "flagged extrema")
+    for i in estimate.flagged_extrema:
+        bottom.annotate(f"#{i}", (et[i] * factor, ev[i]), textcoords="offset points", xytext=(6, 4), fontsize=8)
+    line_t = np.linspace(0.0, max(span, float(np.max(et)) if len(et) else span), 200)
+    bottom.plot(line_t * factor, estimate.envelope_at(line_t), color="black", linewidth=1.0,
+                label="fitted envelope")
+    if estimate.alternate is not None:
+        which = "with flagged" if estimate.excludes_flagged else "without flagged"
+        bottom.plot(line_t * factor, estimate.alternate.envelope_at(line_t), color="#666666",
+                    linestyle=(0, (4, 2)), linewidth=1.0, label=f"envelope {which}")
+    bottom.set_yscale("log")
+    if len(ev) and np.all(ev > 0):
+        bottom.set_ylim(ev.min() / 3.0, ev.max() * 3.0)
+    bottom.set_ylabel("|extremum - offset| (V)")
+    bottom.set_xlabel(f"time from the event ({prefix}s)" if not peaks else f"time ({prefix}s)")
+    for axis in (top, bottom):
+        axis.grid(True, which="major", linestyle=(0, (1, 3)), linewidth=0.6, color="#9a9a9a")
+        axis.legend(fontsize=7, frameon=False, loc="upper right")
+        axis.tick_params(labelsize=8)
+    fig.tight_layout()
+    fig.savefig(path, format="png")
+    plt.close(fig)
+
+
+def _atomic_write(path: Path, writer: Callable[[Path], None]) -> None:
+    """Run ``writer`` on a temporary file next to ``path``, then rename it into place."""
+    temporary: Path | None = None
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        handle, name = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
+        os.close(handle)
+        temporary = Path(name)
+        writer(temporary)
+        os.replace(temporary, path)
+        temporary = None
+    except OSError as exc:
+        raise XcheckError(
+            f"{path}: cannot write ({exc.strerror or exc}); check that the folder is writable "
+            "or choose another path"
+        ) from exc
+    finally:
+        if temporary is not None and temporary.exists():
+            temporary.unlink()
+

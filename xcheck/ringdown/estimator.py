@@ -1,0 +1,548 @@
+"""Ring-down estimate from a sampled trace: the whole chain in one function.
+
+1. Extrema refined between samples and the logarithmic decrement: first guess, and a
+   check that at least about 1.5 periods of ringing rise above the noise.
+2. Matrix pencil (Hua & Sarkar 1990) on a block-averaged stretch of the record:
+   starting poles, and more than one mode when asked for.
+3. Nonlinear least squares of ``A exp(-alpha t) cos(omega_d t + phi) + offset`` on every
+   usable sample (block means for very long records, with the exact block-mean
+   correction), standard errors ``s^2 (J^T J)^-1`` inflated by ``N / N_eff``.
+4. Cramér-Rao bound of the same model at the estimate, from ``J^T J / sigma^2`` over
+   all usable samples (Kay 1993, vol. 1, eq. 3.31).
+5. Envelope diagnostics; when isolated extrema are flagged, the fit is repeated without
+   the samples around them and both estimates are kept.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import dataclass
+
+import numpy as np
+
+from xcheck.errors import TraceError
+from xcheck.ringdown.crb import damped_sinusoid_crb
+from xcheck.ringdown.envelope import diagnose_envelope
+from xcheck.ringdown.extrema import (
+    Extrema,
+    find_extrema,
+    log_decrement,
+    noise_from_smoothing,
+    rough_frequency,
+    sample_step,
+)
+from xcheck.ringdown.nls import (
+    block_means,
+    fit_damped,
+    linear_amplitudes,
+    mode_count,
+    model_chunked,
+    residual_correlation,
+    sandwich_covariance,
+    unblock,
+    unit_covariance,
+)
+from xcheck.ringdown.pencil import damped_pairs, matrix_pencil
+from xcheck.ringdown.result import (
+    EnvelopeDiagnostics,
+    Estimate,
+    ModeEstimate,
+    RingdownEstimate,
+    estimate_from,
+    gradient,
+    wrap_phase,
+)
+from xcheck.values import format_eng
+
+#: Periods of ringing above the noise needed for an estimate.
+MIN_PERIODS = 1.5
+#: Above this many usable samples the fit runs on block means.
+MAX_FIT_SAMPLES = 200_000
+#: Samples handed to the matrix pencil at most (its SVD grows with the cube).
+PENCIL_SAMPLES = 300
+
+
+@dataclass(frozen=True)
+class _Fit:
+    """One least-squares fit in sample-level parameters, time measured from ``t_ref``."""
+
+    theta: np.ndarray  # [alpha, omega, a, b]*M + [offset], time origin t_ref
+    cov: np.ndarray
+    crb: np.ndarray
+    t_ref: float
+    sigma: float
+    noise_source: str
+    n_used: int
+    n_eff: float
+    residual_rms: float
+    success: bool
+    notes: tuple[str, ...]
+
+
+def estimate_ringdown(
+    time: np.ndarray,
+    voltage: np.ndarray,
+    *,
+    noise_sigma: float | None = None,
+    exclude: np.ndarray | None = None,
+    modes: int = 1,
+    resolution: float | None = None,
+    source: str = "trace",
+) -> RingdownEstimate:
+    """Estimate frequency, decay, amplitude and offset of a ring-down trace.
+
+    Parameters
+    ----------
+    time
+        Sample times (s), strictly increasing, the event at t = 0 (the model's
+        amplitude and ``initial_volts`` refer to t = 0).
+    voltage
+        Samples (V).
+    noise_sigma
+        Per-sample noise (V), e.g. from the pre-event baseline; None to use the fit
+        residuals. When the residuals scatter significantly more, they are used instead
+        and a note says so.
+    exclude
+        Boolean mask of samples to leave out (clipped, known glitches); counted in
+        ``samples_excluded``.
+    modes
+        Number of damped sinusoids; the largest-amplitude one is reported as the main
+        mode, the others in ``extra_modes``.
+    resolution
+        Converter step (LSB) q (V). When q exceeds ``noise_sigma`` the quantisation
+        error variance q^2/12 (uniform-error model, common practice) is added.
+    source
+        Name of the input for error messages.
+
+    Returns
+    -------
+    RingdownEstimate
+        Estimates with standard errors and Cramér-Rao bounds, extrema, diagnostics.
+
+    Raises
+    ------
+    TraceError
+        Malformed arrays, or fewer than about 1.5 periods of ringing above the noise.
+    ValueError
+        ``modes`` below 1.
+    """
+    if modes < 1:
+        raise ValueError(f"modes must be 1 or more, got {modes}")
+    t, v, keep = _validated(time, voltage, exclude, source)
+    notes: list[str] = []
+    step = sample_step(t)
+    uniform = bool(np.max(np.abs(np.diff(t) - step)) <= 1e-3 * step)
+    if not uniform:
+        notes.append("sampling is not uniform: the pencil runs on an interpolated copy, no block averaging")
+    t_in, v_in = t[keep], v[keep]
+    filled = v if keep.all() else np.interp(t, t_in, v_in)
+    freq0 = rough_frequency(t, filled)
+    period0 = 1.0 / freq0
+    given = noise_sigma is not None and noise_sigma > 0 and math.isfinite(noise_sigma)
+    if noise_sigma is not None and not given:
+        notes.append(f"noise level {noise_sigma!r} is not a positive number; the residuals are used")
+    sigma0 = float(noise_sigma) if given else noise_from_smoothing(filled, period0 / step)
+    if resolution:
+        sigma0 = math.hypot(sigma0, resolution / math.sqrt(12.0))
+    offset0 = float(np.median(v_in))
+    first = find_extrema(t, v, period=period0, offset=offset0, noise_sigma=sigma0, keep=keep)
+    _check_length(t, first, freq0, source)
+    rates_ld = None
+    if len(first) >= 2:
+        alpha_ld, omega_ld = log_decrement(first.time, first.value - offset0)
+        rates_ld = [(alpha_ld, omega_ld)]
+    rates_mp = _pencil_rates(t, v, keep, uniform, period0, modes, rates_ld)
+    if rates_mp is None:
+        notes.append("matrix pencil gave no usable poles; started from the logarithmic decrement")
+    noise = float(noise_sigma) if given else None
+    fit = _fit(t, v, keep, rates_mp, rates_ld, modes, noise, resolution, uniform, step, source)
+    main = _assemble(t, v, keep, fit, notes, source_kind="trace")
+    if not main.envelope.flagged:
+        return main
+    period = 2.0 * math.pi / main.angular_frequency.value
+    near = np.zeros(len(t), dtype=bool)
+    for i in main.envelope.flagged:
+        near |= np.abs(t - main.extrema_time[i]) < period / 4.0
+    start = [(main.model_parameters[4 * m], main.model_parameters[4 * m + 1]) for m in range(modes)]
+    refit = _fit(t, v, keep & ~near, start, rates_ld, modes, noise, resolution, uniform, step, source)
+    cleaned = _assemble(
+        t, v, keep & ~near, refit,
+        notes + [f"{int(near.sum())} samples around the flagged extrema left out"],
+        source_kind="trace", envelope=main.envelope, extrema=(main.extrema_time, main.extrema_value),
+    )
+    return _pair(main, cleaned)
+
+
+def _pair(with_all: RingdownEstimate, without: RingdownEstimate) -> RingdownEstimate:
+    """Main estimate and alternate: without the flagged extrema when they are isolated."""
+    from dataclasses import replace
+
+    if with_all.envelope.pattern == "isolated":
+        return replace(
+            without,
+            excludes_flagged=True,
+            notes=without.notes + ("main estimate leaves the flagged extrema out; 'alternate' keeps them",),
+            alternate=replace(with_all, alternate=None),
+        )
+    return replace(
+        with_all,
+        notes=with_all.notes + ("flagged extrema kept (systematic pattern); 'alternate' leaves them out",),
+        alternate=replace(without, alternate=None, excludes_flagged=True),
+    )
+
+
+def _validated(
+    time: np.ndarray, voltage: np.ndarray, exclude: np.ndarray | None, source: str
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Arrays as float, with every problem of the input reported together."""
+    t = np.asarray(time, dtype=float)
+    v = np.asarray(voltage, dtype=float)
+    problems: list[str] = []
+    if t.ndim != 1 or v.ndim != 1 or t.shape != v.shape:
+        raise TraceError(source, [f"time and voltage must be 1-D arrays of one length, got shapes {t.shape} and {v.shape}"])
+    keep = np.ones(len(t), dtype=bool)
+    if exclude is not None:
+        ex = np.asarray(exclude, dtype=bool)
+        if ex.shape != t.shape:
+            problems.append(f"the exclusion mask has shape {ex.shape}, the trace {t.shape}; pass one flag per sample")
+        else:
+            keep = ~ex
+    bad_t = ~np.isfinite(t)
+    if bad_t.any():
+        problems.append(f"{int(bad_t.sum())} time values are not finite (first at sample {int(np.argmax(bad_t))}); remove or repair them")
+    bad_v = ~np.isfinite(v) & keep
+    if bad_v.any():
+        problems.append(f"{int(bad_v.sum())} voltage values are not finite (first at sample {int(np.argmax(bad_v))}); remove them or mark them excluded")
+    if len(t) > 1 and not bad_t.any():
+        d = np.diff(t)
+        if np.any(d <= 0):
+            i = int(np.argmax(d <= 0))
+            problems.append(f"time does not increase at sample {i + 1} ({t[i]!r} then {t[i + 1]!r}); times must be strictly increasing")
+    if int(keep.sum()) < 16:
+        problems.append(f"only {int(keep.sum())} usable samples; a ring-down estimate needs at least 16 (and 1.5 periods of ringing)")
+    if problems:
+        raise TraceError(source, problems)
+    return t, v, keep
+
+
+def _check_length(t: np.ndarray, ext: Extrema, freq: float, source: str) -> None:
+    """TraceError unless about 1.5 periods of ringing rise above the noise."""
+    period = 1.0 / freq
+    end = min(float(t[-1]), float(ext.time[-1]) + period / 2.0) if len(ext) else float(t[0])
+    periods = (end - float(t[0])) * freq
+    if periods >= MIN_PERIODS - 0.05 and len(ext) >= 2:
+        return
+    span = float(t[-1] - t[0])
+    raise TraceError(
+        source,
+        [
+            f"found about {periods:.1f} periods of ringing above the noise ({len(ext)} "
+            f"extrema, strongest frequency about {format_eng(freq, 'Hz')}) in a record of "
+            f"{format_eng(span, 's')}; at least {MIN_PERIODS} periods are needed to estimate "
+            "frequency and decay: capture a longer record (slower timebase), check the "
+            "column and the event time, or read the extrema into a peak table"
+        ],
+    )
+
+
+def _pencil_rates(
+    t: np.ndarray,
+    v: np.ndarray,
+    keep: np.ndarray,
+    uniform: bool,
+    period: float,
+    modes: int,
+    rates_ld: list[tuple[float, float]] | None,
+) -> list[tuple[float, float]] | None:
+    """Starting (alpha, omega) pairs from the matrix pencil, largest amplitude first."""
+    step = sample_step(t)
+    if not uniform:
+        grid = np.arange(t[0], t[-1], step)
+        v = np.interp(grid, t[keep], v[keep])
+        t, keep = grid, np.ones(len(grid), dtype=bool)
+    per_period = period / step
+    block = max(1, int(per_period // 12))
+    span = period * 60.0
+    if rates_ld and rates_ld[0][0] > 0:
+        span = min(span, max(2.0 * period, 4.0 / rates_ld[0][0]))
+    n_window = min(len(t), int(span / step) + 1, PENCIL_SAMPLES * block)
+    ok = keep[:n_window]
+    lo, hi = _longest_run(ok)
+    if (hi - lo) // block < 4 * (2 * modes + 1):
+        return None
+    y_t, y_v = block_means(t[lo:hi], v[lo:hi], ok[lo:hi], block)
+    try:
+        found = matrix_pencil(y_v, step * block, 2 * modes + 1)
+    except ValueError:
+        return None
+    pairs = damped_pairs(found.poles, math.pi / (step * block))
+    if len(pairs) < modes:
+        return None
+    theta = linear_amplitudes(y_t - y_t[0], y_v, pairs)
+    size = [math.hypot(theta[4 * m + 2], theta[4 * m + 3]) for m in range(len(pairs))]
+    order = np.argsort(size)[::-1][:modes]
+    return [pairs[i] for i in order]
+
+
+def _longest_run(mask: np.ndarray) -> tuple[int, int]:
+    """Start and end (exclusive) of the longest run of True."""
+    padded = np.concatenate(([False], mask, [False])).astype(int)
+    edges = np.flatnonzero(np.diff(padded))
+    starts, ends = edges[::2], edges[1::2]
+    if len(starts) == 0:
+        return 0, 0
+    i = int(np.argmax(ends - starts))
+    return int(starts[i]), int(ends[i])
+
+
+def _fit(
+    t: np.ndarray,
+    v: np.ndarray,
+    keep: np.ndarray,
+    rates_mp: list[tuple[float, float]] | None,
+    rates_ld: list[tuple[float, float]] | None,
+    modes: int,
+    noise_sigma: float | None,
+    resolution: float | None,
+    uniform: bool,
+    step: float,
+    source: str,
+) -> _Fit:
+    """Least squares from the best start, noise level, covariance and bound."""
+    notes: list[str] = []
+    t_ref = float(t[keep][0])
+    ts = t - t_ref
+    n_in = int(keep.sum())
+    block = 1
+    if uniform and n_in > MAX_FIT_SAMPLES:
+        per_period = 2.0 * math.pi / max(r[1] for r in (rates_mp or rates_ld or [(0.0, 1.0 / step)])) / step
+        block = max(1, min(math.ceil(n_in / MAX_FIT_SAMPLES), int(per_period // 20)))
+    if block > 1:
+        tf, vf = block_means(ts, v, keep, block)
+        notes.append(f"fitted on means of {block} samples (exact block-mean model correction applied)")
+    else:
+        tf, vf = ts[keep], v[keep]
+    best = None
+    for rates in (rates_mp, _padded(rates_ld, modes)):
+        if rates is None:
+            continue
+        trial = fit_damped(tf, vf, linear_amplitudes(tf, vf, rates))
+        plausible = all(trial.theta[4 * m + 1] > 0 for m in range(modes))
+        if best is None or (plausible and (trial.cost < best[0].cost or not best[1])):
+            best = (trial, plausible)
+        if trial.success and plausible:
+            break
+    if best is None:
+        raise TraceError(source, ["no starting values could be found for the fit; the record may hold no ringing"])
+    fit, plausible = best
+    theta_fit = _sorted_modes(fit.theta)
+    jac_fit = _reordered_jacobian(fit.jacobian, fit.theta, theta_fit)
+    # Block-mean parameters -> sample-level parameters (identity when block == 1).
+    theta = unblock(theta_fit, block, step)
+    t_in = ts[keep]
+    resid_full = v[keep] - model_chunked(t_in, theta)
+    p = len(theta)
+    rms = float(np.sqrt(np.mean(resid_full**2)))
+    s_sample = float(np.sqrt(np.sum(resid_full**2) / max(n_in - p, 1)))
+    s_fit = float(np.sqrt(np.sum(fit.residuals**2) / max(len(tf) - p, 1)))
+    rho, n_eff_fit = residual_correlation(fit.residuals)
+    if noise_sigma is not None:
+        sigma = float(noise_sigma)
+        noise_source = "given noise level (pre-event baseline)"
+        if resolution and resolution > noise_sigma:
+            sigma = math.hypot(sigma, resolution / math.sqrt(12.0))
+            noise_source += " plus quantisation q^2/12"
+        sigma_fit = sigma / math.sqrt(block)
+        if s_fit > sigma_fit * (1.0 + 3.0 / math.sqrt(2.0 * n_eff_fit)):
+            notes.append(
+                f"the residuals scatter {s_fit / sigma_fit:.2f} times the given noise level "
+                "(model misfit, extra noise or correlation within averaging blocks); the "
+                "residual scatter is used for the uncertainties"
+            )
+            sigma_fit = s_fit
+            sigma = max(sigma, s_sample)
+            noise_source = "fit residuals (larger than the given noise level)"
+    else:
+        sigma, sigma_fit, noise_source = s_sample, s_fit, "fit residuals"
+    naive = sigma_fit**2 * unit_covariance(jac_fit)
+    cov_fit = _at_least(sandwich_covariance(jac_fit, rho, sigma_fit), naive)
+    if n_eff_fit < 0.95 * len(tf):
+        widen = np.sqrt(np.diag(cov_fit) / np.diag(naive))
+        notes.append(
+            f"residuals are correlated: {n_eff_fit:.0f} effective of {len(tf)} "
+            f"{'block means' if block > 1 else 'samples'}; standard errors from the "
+            f"autocorrelation-consistent (sandwich) covariance, {widen.min():.2f} to "
+            f"{widen.max():.2f} times the white-noise ones"
+        )
+    if block > 1:
+        umap = _jacobian_of(lambda q: unblock(q, block, step), theta_fit, cov_fit)
+        cov = umap @ cov_fit @ umap.T
+    else:
+        cov = cov_fit
+    crb = damped_sinusoid_crb(t_in, theta, sigma)
+    if not fit.success or not plausible:
+        notes.append(f"the optimiser did not converge cleanly: {fit.message}")
+    return _Fit(
+        theta=theta,
+        cov=cov,
+        crb=crb,
+        t_ref=t_ref,
+        sigma=sigma,
+        noise_source=noise_source,
+        n_used=n_in,
+        n_eff=n_eff_fit * block,
+        residual_rms=rms,
+        success=bool(fit.success and plausible),
+        notes=tuple(notes),
+    )
+
+
+def _at_least(cov: np.ndarray, floor: np.ndarray) -> np.ndarray:
+    """``cov`` with each variance raised to at least that of ``floor`` (correlations kept).
+
+    Correlated noise is never allowed to make a standard error smaller than white noise
+    of the same per-sample level would (a conservative choice, common practice).
+    """
+    d_cov, d_floor = np.diag(cov), np.diag(floor)
+    scale = np.sqrt(np.where(d_cov > 0, np.maximum(d_floor / np.where(d_cov > 0, d_cov, 1.0), 1.0), 1.0))
+    return cov * np.outer(scale, scale)
+
+
+def _padded(rates: list[tuple[float, float]] | None, modes: int) -> list[tuple[float, float]] | None:
+    """Log-decrement start for ``modes`` modes: extra modes start at multiples of it."""
+    if rates is None:
+        return None
+    alpha, omega = rates[0]
+    return [(alpha * (m + 1), omega * (m + 1)) for m in range(modes)]
+
+
+def _sorted_modes(theta: np.ndarray) -> np.ndarray:
+    """Modes in order of falling amplitude ``hypot(a, b)``."""
+    blocks = [theta[4 * m : 4 * m + 4] for m in range(mode_count(theta))]
+    blocks.sort(key=lambda b: -math.hypot(b[2], b[3]))
+    return np.concatenate(blocks + [theta[-1:]])
+
+
+def _reordered_jacobian(jac: np.ndarray, before: np.ndarray, after: np.ndarray) -> np.ndarray:
+    """Columns of ``jac`` permuted like the mode blocks from ``before`` to ``after``."""
+    modes = mode_count(before)
+    order = []
+    for m in range(modes):
+        match = next(k for k in range(modes) if np.array_equal(before[4 * k : 4 * k + 4], after[4 * m : 4 * m + 4]))
+        order += list(range(4 * match, 4 * match + 4))
+    order.append(len(before) - 1)
+    return jac[:, order]
+
+
+def _jacobian_of(func: Callable[[np.ndarray], np.ndarray], x: np.ndarray, cov: np.ndarray) -> np.ndarray:
+    """Central-difference Jacobian of a vector function (rows: outputs)."""
+    return np.array([gradient(lambda p, i=i: float(func(p)[i]), x, cov) for i in range(len(x))])
+
+
+def _quantities(theta_ref: np.ndarray, t_ref: float) -> list[Callable[[np.ndarray], float]]:
+    """Functions of the fitted parameters: main mode (alpha, omega, A, phi, offset),
+    initial volts, then (alpha, omega, A, phi) of every further mode. Amplitude and phase
+    refer to t = 0 (the fit's origin is ``t_ref``)."""
+    modes = mode_count(theta_ref)
+
+    def z_abs(p: np.ndarray, m: int) -> complex:
+        alpha, omega, a, b = p[4 * m : 4 * m + 4]
+        return complex(a, -b) * np.exp(-complex(-alpha, omega) * t_ref)
+
+    hats = [z_abs(theta_ref, m) for m in range(modes)]
+
+    def mode_funcs(m: int) -> list[Callable[[np.ndarray], float]]:
+        phase0 = math.atan2(hats[m].imag, hats[m].real)
+        return [
+            lambda p: p[4 * m],
+            lambda p: p[4 * m + 1],
+            lambda p: abs(z_abs(p, m)),
+            lambda p: phase0 + float(np.angle(z_abs(p, m) / hats[m])),
+        ]
+
+    funcs = mode_funcs(0) + [lambda p: p[-1]]
+    funcs.append(lambda p: sum(z_abs(p, m).real for m in range(modes)) + p[-1])
+    for m in range(1, modes):
+        funcs += mode_funcs(m)
+    return funcs
+
+
+def _assemble(
+    t: np.ndarray,
+    v: np.ndarray,
+    keep: np.ndarray,
+    fit: _Fit,
+    notes: list[str],
+    *,
+    source_kind: str,
+    envelope: EnvelopeDiagnostics | None = None,
+    extrema: tuple[np.ndarray, np.ndarray] | None = None,
+) -> RingdownEstimate:
+    """RingdownEstimate from a fit: delta-method transforms, extrema and diagnostics."""
+    funcs = _quantities(fit.theta, fit.t_ref)
+    grads = np.array([gradient(f, fit.theta, fit.cov) for f in funcs])
+    values = np.array([f(fit.theta) for f in funcs])
+    cov_q = grads @ fit.cov @ grads.T
+    crb_q = grads @ fit.crb @ grads.T
+    alpha, omega = values[0], values[1]
+    offset = values[4]
+    two_pi = 2.0 * math.pi
+    freq = Estimate(omega / two_pi, math.sqrt(cov_q[1, 1]) / two_pi, math.sqrt(crb_q[1, 1]) / two_pi)
+    extra = []
+    for m in range(1, mode_count(fit.theta)):
+        base = 6 + 4 * (m - 1)
+        e = [estimate_from(values, cov_q, crb_q, base + k) for k in range(4)]
+        extra.append(
+            ModeEstimate(
+                neper_frequency=e[0],
+                angular_frequency=e[1],
+                damped_frequency=Estimate(e[1].value / two_pi, e[1].stderr / two_pi, (e[1].crb or 0.0) / two_pi),
+                amplitude=e[2],
+                phase=Estimate(wrap_phase(e[3].value), e[3].stderr, e[3].crb),
+            )
+        )
+    theta_abs = np.array(fit.theta, dtype=float)
+    for m in range(mode_count(fit.theta)):
+        a_m, b_m = theta_abs[4 * m + 2 : 4 * m + 4]
+        z = complex(a_m, -b_m) * np.exp(-complex(-theta_abs[4 * m], theta_abs[4 * m + 1]) * fit.t_ref)
+        theta_abs[4 * m + 2], theta_abs[4 * m + 3] = z.real, -z.imag
+    if extrema is None:
+        inflation = math.sqrt(max(fit.n_used / fit.n_eff, 1.0))
+        ext = find_extrema(
+            t, v, period=two_pi / omega, offset=offset, noise_sigma=fit.sigma * inflation, keep=keep
+        )
+        ext_time, ext_value = ext.time, ext.value
+        if envelope is None:
+            envelope = diagnose_envelope(
+                ext.time, ext.sign * (ext.value - offset), ext.sigma * inflation, kind=source_kind
+            )
+    else:
+        ext_time, ext_value = extrema
+    assert envelope is not None
+    main_idx = [0, 1, 2, 3, 4]
+    return RingdownEstimate(
+        neper_frequency=estimate_from(values, cov_q, crb_q, 0),
+        angular_frequency=estimate_from(values, cov_q, crb_q, 1),
+        damped_frequency=freq,
+        amplitude=estimate_from(values, cov_q, crb_q, 2),
+        phase=Estimate(wrap_phase(values[3]), math.sqrt(cov_q[3, 3]), math.sqrt(crb_q[3, 3])),
+        offset=estimate_from(values, cov_q, crb_q, 4),
+        initial_volts=estimate_from(values, cov_q, crb_q, 5),
+        covariance=cov_q[np.ix_(main_idx, main_idx)],
+        crb_covariance=crb_q[np.ix_(main_idx, main_idx)],
+        model_parameters=theta_abs,
+        extrema_time=np.asarray(ext_time),
+        extrema_value=np.asarray(ext_value),
+        noise_sigma=fit.sigma,
+        noise_source=fit.noise_source,
+        samples_used=fit.n_used,
+        samples_excluded=int(len(t) - fit.n_used),
+        effective_samples=fit.n_eff,
+        residual_rms=fit.residual_rms,
+        envelope=envelope,
+        method="trace: extrema and log decrement, matrix pencil, nonlinear least squares",
+        notes=tuple(notes) + fit.notes,
+        extra_modes=tuple(extra),
+        success=fit.success,
+    )

@@ -1,0 +1,242 @@
+"""Extrema of a ringing trace, refined between samples, and the logarithmic decrement.
+
+These give the first guess of frequency and decay and the points of the envelope
+diagnostics. Peak picking is scipy.signal.find_peaks; each peak is refined by a local
+least-squares parabola over about a quarter period (numpy.polyfit), whose vertex gives a
+time between samples and a value with the noise of many samples averaged.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.signal import find_peaks, periodogram, savgol_coeffs, savgol_filter
+
+
+@dataclass(frozen=True)
+class Extrema:
+    """Alternating extrema in time order.
+
+    Attributes
+    ----------
+    time, value
+        Vertex time (s) and value (V) of each extremum.
+    sigma
+        Standard deviation of each value from the local fit (V).
+    sign
+        +1 for a maximum, -1 for a minimum.
+    """
+
+    time: np.ndarray
+    value: np.ndarray
+    sigma: np.ndarray
+    sign: np.ndarray
+
+    def __len__(self) -> int:
+        return len(self.time)
+
+
+def sample_step(time: np.ndarray) -> float:
+    """Median sample interval (s)."""
+    return float(np.median(np.diff(time)))
+
+
+def noise_from_smoothing(voltage: np.ndarray, samples_per_period: float) -> float:
+    """Robust per-sample noise estimate from the residual of a Savitzky-Golay smoother.
+
+    A cubic over a quarter period follows a sinusoid closely, so the residual is mostly
+    noise; its median absolute deviation (times 1.4826, the normal-consistency factor,
+    common practice) is corrected for the share of the noise the smoother keeps
+    (``1 - h0``, ``h0`` its centre coefficient).
+    """
+    v = np.asarray(voltage, dtype=float)[:2_000_000]
+    window = int(max(7, min(samples_per_period / 4.0, len(v) // 2)))
+    window += 1 - window % 2
+    if window >= len(v):
+        return float(np.std(v))
+    smooth = savgol_filter(v, window, 3)
+    centre = savgol_coeffs(window, 3)[window // 2]
+    resid = v - smooth
+    mad = 1.4826 * float(np.median(np.abs(resid - np.median(resid))))
+    return mad / math.sqrt(max(1.0 - centre, 1e-6))
+
+
+def rough_frequency(time: np.ndarray, voltage: np.ndarray) -> float:
+    """Frequency (Hz) of the strongest spectral peak above 1/record (scipy.signal.periodogram).
+
+    Long records are averaged in blocks to at most 2**18 points first (the peak of a
+    ring-down lies far below the block rate in any sensible capture).
+    """
+    v = np.asarray(voltage, dtype=float) - float(np.mean(voltage))
+    step = sample_step(time)
+    block = max(1, math.ceil(len(v) / 2**18))
+    if block > 1:
+        n = len(v) // block
+        v = v[: n * block].reshape(n, block).mean(axis=1)
+        step *= block
+    nfft = 1 << max(12, (8 * len(v) - 1).bit_length())
+    nfft = min(nfft, 1 << 22)
+    freqs, power = periodogram(v, fs=1.0 / step, nfft=nfft, detrend=False, window="hann")
+    span = step * len(v)
+    usable = freqs >= 1.0 / span
+    if not usable.any():
+        return 1.0 / span
+    return float(freqs[usable][np.argmax(power[usable])])
+
+
+def find_extrema(
+    time: np.ndarray,
+    voltage: np.ndarray,
+    *,
+    period: float,
+    offset: float,
+    noise_sigma: float,
+    keep: np.ndarray | None = None,
+    min_snr: float = 5.0,
+) -> Extrema:
+    """Alternating maxima and minima of a ringing trace, refined between samples.
+
+    Parameters
+    ----------
+    time, voltage
+        The trace (s, V), uniformly sampled.
+    period
+        Approximate oscillation period (s); peaks closer than 0.6 period are merged.
+    offset
+        Level the trace rings around (V).
+    noise_sigma
+        Per-sample noise (V); extrema whose distance from ``offset`` is under
+        ``min_snr`` times the refined value's uncertainty end the ringing.
+    keep
+        Samples allowed in the refinement windows (clipped samples excluded); an
+        extremum whose window touches an excluded sample is skipped.
+    min_snr
+        Significance threshold, see ``noise_sigma``.
+
+    Returns
+    -------
+    Extrema
+        From the first extremum to the last one above the noise.
+    """
+    t = np.asarray(time, dtype=float)
+    v = np.asarray(voltage, dtype=float)
+    ok = np.ones(len(t), dtype=bool) if keep is None else np.asarray(keep, dtype=bool)
+    step = sample_step(t)
+    per_period = max(period / step, 2.0)
+    half = max(1, int(round(per_period / 8.0)))
+    distance = max(1, int(0.6 * per_period))
+    y = np.where(ok, v - offset, 0.0)
+    floor = min_snr * noise_sigma / math.sqrt(2 * half + 1)
+    found: list[tuple[float, float, float, int]] = []
+    for sign in (1, -1):
+        peaks, _ = find_peaks(sign * y, distance=distance)
+        # Samples far inside the noise cannot become significant extrema: skip early.
+        peaks = peaks[sign * y[peaks] > 0.5 * floor]
+        for row in _refine(t, v, ok, peaks, half, sign, noise_sigma):
+            found.append((*row, sign))
+    found.sort()
+    merged: list[tuple[float, float, float, int]] = []
+    for item in found:
+        # Two maxima (or minima) in a row closer than 3/4 period are one extremum seen
+        # twice; further apart, the extremum between them was skipped (e.g. clipped).
+        if merged and merged[-1][3] == item[3] and item[0] - merged[-1][0] < 0.75 * period:
+            if item[3] * (item[1] - offset) > merged[-1][3] * (merged[-1][1] - offset):
+                merged[-1] = item
+            continue
+        merged.append(item)
+    kept: list[tuple[float, float, float, int]] = []
+    for item in merged:
+        size = item[3] * (item[1] - offset)
+        if size < min_snr * max(item[2], floor / min_snr):
+            if not kept:
+                continue  # noise bumps before the first clear extremum (e.g. on the first edge)
+            break
+        if kept and item[0] - kept[-1][0] > 0.75 * period and ok[(t > kept[-1][0]) & (t < item[0])].all():
+            break  # an extremum is missing without excluded samples to explain it: noise
+        kept.append(item)
+    arr = np.array(kept, dtype=float).reshape(-1, 4)
+    return Extrema(arr[:, 0], arr[:, 1], arr[:, 2], arr[:, 3].astype(int))
+
+
+def _refine(
+    t: np.ndarray, v: np.ndarray, ok: np.ndarray, peaks: np.ndarray, half: int, sign: int, sigma: float
+) -> list[tuple[float, float, float]]:
+    """Vertex of the least-squares parabola through the samples around each peak.
+
+    Least squares over the ``2 half + 1`` samples centred on each peak (positions in
+    units of the median sample step). When the vertex falls outside the window (noise
+    moved the highest sample off the true extremum) the window is moved to the vertex
+    and the fit repeated, twice at most; if it still fails, the peak sample itself is
+    kept with the noise of one sample. Peaks whose window holds an excluded sample are
+    skipped. Returns (time, value, standard deviation of the value) per peak.
+    """
+    step = sample_step(t)
+    offsets = np.arange(-half, half + 1)
+    design = np.vander(offsets.astype(float), 3)
+    unscaled = np.linalg.inv(design.T @ design)
+    solve = unscaled @ design.T
+    out = []
+    for peak in peaks:
+        centre = int(peak)
+        result = None
+        for _ in range(3):
+            lo, hi = centre - half, centre + half + 1
+            if lo < 0 or hi > len(t) or not ok[lo:hi].all():
+                break
+            x = (t[lo:hi] - t[centre]) / step
+            if np.allclose(x, offsets, atol=1e-3):
+                c2, c1, c0 = solve @ v[lo:hi]
+                cov = unscaled
+            else:
+                (c2, c1, c0), cov = np.polyfit(x, v[lo:hi], 2, cov="unscaled")
+            if sign * c2 >= 0:
+                break
+            vertex = -c1 / (2.0 * c2)
+            if abs(vertex) <= half:
+                value = c0 - c1 * c1 / (4.0 * c2)
+                grad = np.array([c1 * c1 / (4.0 * c2 * c2), -c1 / (2.0 * c2), 1.0])
+                var = float(grad @ cov @ grad) * sigma**2
+                result = (float(t[centre] + vertex * step), float(value), math.sqrt(max(var, 0.0)))
+                break
+            centre += int(round(vertex))
+        if result is None:
+            if peak - half < 0 or peak + half >= len(t) or not ok[max(peak - half, 0) : peak + half + 1].all():
+                continue
+            result = (float(t[peak]), float(v[peak]), float(sigma))
+        out.append(result)
+    return out
+
+
+def log_decrement(times: np.ndarray, amplitudes: np.ndarray) -> tuple[float, float]:
+    """Decay rate and damped angular frequency from successive extrema.
+
+    Successive extrema of ``A exp(-alpha t) cos(omega_d t + phi)`` are half a period
+    ``pi / omega_d`` apart and their magnitudes fall by ``exp(-alpha pi / omega_d)``
+    each (the logarithmic decrement per period is ``delta = alpha T_d``, common
+    textbook result). ``alpha`` is the least-squares slope of ``log|amplitude|`` against
+    time, ``omega_d`` is ``pi`` over the least-squares spacing; the half-period count of
+    each extremum is its distance from the first in median spacings, so a skipped
+    extremum (clipped) leaves a gap rather than a wrong count.
+
+    Parameters
+    ----------
+    times
+        Extremum times (s), consecutive half periods.
+    amplitudes
+        Extremum values measured from the offset (V).
+
+    Returns
+    -------
+    tuple of float
+        ``(alpha, omega_d)`` in 1/s and rad/s.
+    """
+    t = np.asarray(times, dtype=float)
+    mag = np.abs(np.asarray(amplitudes, dtype=float))
+    if len(t) < 2:
+        raise ValueError("the logarithmic decrement needs at least two extrema")
+    k = np.round((t - t[0]) / float(np.median(np.diff(t))))
+    spacing = np.polyfit(k, t, 1)[0] if len(t) > 2 else t[1] - t[0]
+    slope = np.polyfit(t, np.log(mag), 1)[0]
+    return float(-slope), float(math.pi / spacing)
