@@ -170,8 +170,27 @@ def _apply_loop_reading(
     return parameters, notes
 
 
-def default_ladder(fixture: Fixture) -> list[Candidate]:
-    """The four default candidates for ``fixture`` (see the module docstring)."""
+@dataclass(frozen=True)
+class RingHint:
+    """What the measurement says before any fit: undamped angular frequency (rad/s).
+
+    It gives start values for an inductance or capacitance written ``"?"``, from
+    omega0^2 = 1 / (L C).
+    """
+
+    omega0: float
+
+
+def default_ladder(fixture: Fixture, hint: RingHint | None = None) -> list[Candidate]:
+    """The four default candidates for ``fixture`` (see the module docstring).
+
+    Parameters
+    ----------
+    fixture
+        The fixture description.
+    hint
+        The measured ring, for start values of unknown L or C.
+    """
     label_set = parameters_from_fixture(fixture, use_measured=False, include_parasitics=False)
     measured_set = parameters_from_fixture(fixture, use_measured=True, include_parasitics=True)
     measured_set, loop_notes = _apply_loop_reading(fixture, measured_set)
@@ -196,7 +215,8 @@ def default_ladder(fixture: Fixture) -> list[Candidate]:
             (extra,),
         )
     )
-    free = [extra] + _unknown_free(fixture, measured_set) + _reactive_free(fixture, measured_set)
+    free = ([extra] + _unknown_free(fixture, measured_set, hint)
+            + _reactive_free(fixture, measured_set))
     if len(_dedupe(free)) == 1:
         # Nothing is unknown and both reactive values are measured: this rung would
         # repeat "extra-loss" exactly, so the ladder stops there.
@@ -239,12 +259,13 @@ def _extra_loss_parameter(fixture: Fixture, parameters: ParameterSet) -> FreePar
     )
 
 
-def _unknown_free(fixture: Fixture, parameters: ParameterSet) -> list[FreeParameter]:
+def _unknown_free(fixture: Fixture, parameters: ParameterSet,
+                  hint: RingHint | None = None) -> list[FreeParameter]:
     free = []
     dc_keys = set(dc_series_keys(fixture))
     for key in _unknown_keys(fixture):
         unit = unit_of(fixture, key)
-        start, lower, upper = _guess(fixture, key, unit, parameters)
+        start, lower, upper = _guess(fixture, key, unit, parameters, hint)
         if key in dc_keys and fixture.loop_reading is not None:
             bound = fixture.loop_reading.value + 2 * meter_uncertainty(fixture.loop_reading.reading)
             upper = max(min(upper, bound), lower * 2 or 1e-6)
@@ -253,7 +274,11 @@ def _unknown_free(fixture: Fixture, parameters: ParameterSet) -> list[FreeParame
 
 
 def _guess(
-    fixture: Fixture, key: ParameterKey, unit: str, parameters: ParameterSet
+    fixture: Fixture,
+    key: ParameterKey,
+    unit: str,
+    parameters: ParameterSet,
+    hint: RingHint | None = None,
 ) -> tuple[float, float, float]:
     """Start and bounds for an unknown value: positive, spanning four decades."""
     current = parameters.get(key)
@@ -262,8 +287,26 @@ def _guess(
     part = fixture.parts.get(key[0])
     if key[1] == "value" and part is not None and part.nominal:
         return part.nominal, part.nominal / 10.0, part.nominal * 10.0
+    if key[1] == "value" and part is not None and hint is not None and hint.omega0 > 0:
+        other = _other_reactance(fixture, parameters, part.kind)
+        if other:
+            start = 1.0 / (hint.omega0**2 * other)
+            return start, start / 10.0, start * 10.0
     typical = {"ohm": 0.1, "H": 1e-8, "F": 1e-12}.get(unit, 1.0)
     return typical, 0.0, typical * 1e3
+
+
+def _other_reactance(fixture: Fixture, parameters: ParameterSet, kind: str) -> float | None:
+    """Series total of the other reactive kind (C for an inductor, L for a capacitor)."""
+    other_kind = "capacitor" if kind == "inductor" else "inductor" if kind == "capacitor" else None
+    values = [parameters.get((n, "value")) for n in fixture.loop
+              if fixture.parts[n].kind == other_kind]
+    values = [v for v in values if v]
+    if not values:
+        return None
+    if other_kind == "capacitor":
+        return 1.0 / sum(1.0 / v for v in values)
+    return float(sum(values))
 
 
 def _reactive_free(fixture: Fixture, parameters: ParameterSet) -> list[FreeParameter]:
@@ -311,7 +354,7 @@ def _required_value_keys(fixture: Fixture) -> list[ParameterKey]:
     ]
 
 
-def build_candidates(fixture: Fixture) -> list[Candidate]:
+def build_candidates(fixture: Fixture, hint: RingHint | None = None) -> list[Candidate]:
     """Default ladder plus the fixture's own ``[candidates]``, minus dropped defaults.
 
     Raises
@@ -319,7 +362,7 @@ def build_candidates(fixture: Fixture) -> list[Candidate]:
     FixtureError
         When the ``[candidates]`` table is malformed (all problems reported together).
     """
-    ladder = default_ladder(fixture)
+    ladder = default_ladder(fixture, hint)
     spec = fixture.extras.get("candidates")
     if spec is None:
         return ladder

@@ -18,6 +18,7 @@ import numpy as np
 
 from xcheck.candidates import (
     Candidate,
+    RingHint,
     build_candidates,
     dc_series_keys,
     series_resistance,
@@ -169,7 +170,9 @@ def run_comparison(
     say("reading and aligning the measurement")
     measured = measure(fixture, trace=trace, peaks=peaks, column=column, event_time=event_time)
     observation = measured.observation(max_points=MAX_FIT_POINTS)
-    candidates = build_candidates(fixture)
+    alpha = measured.neper_frequency_per_s.value
+    omega_d = 2 * math.pi * measured.damped_frequency_hz.value
+    candidates = build_candidates(fixture, RingHint(math.hypot(alpha, omega_d)))
     fits: list[FitResult] = []
     for index, candidate in enumerate(candidates, 1):
         say(f"fitting candidate {index}/{len(candidates)}: {candidate.name}")
@@ -380,6 +383,25 @@ def _against_label(fixture: Fixture, value) -> str:
     return text + ")"
 
 
+def _degeneracy_sentences(outcome: CandidateOutcome) -> list[str]:
+    sentences = []
+    for group in outcome.fit.degeneracies:
+        if group.combination == "sum" and math.isfinite(group.value):
+            sentences.append(
+                f"In '{outcome.name}' the data determine only {' + '.join(group.members)} = "
+                f"{format_eng(group.value, group.unit)} ± {format_eng(group.stderr, group.unit)}, "
+                "not the parts separately"
+            )
+        elif group.combination == "product" and math.isfinite(group.value):
+            sentences.append(
+                f"In '{outcome.name}' the data determine only the product {' × '.join(group.members)} "
+                f"= {group.value:.4g} {group.unit} (± {group.stderr:.2g}), not the values separately"
+            )
+        else:
+            sentences.append(f"In '{outcome.name}': {group.reason}")
+    return sentences
+
+
 def write_verdict(fixture: Fixture, measured: Measured, outcomes: list[CandidateOutcome],
                   loop_findings: tuple[str, ...]) -> str:
     """One paragraph a reviewer can read: best candidate, the fitted extra, how much
@@ -400,14 +422,15 @@ def write_verdict(fixture: Fixture, measured: Measured, outcomes: list[Candidate
             f"Fitted {value.label} = {format_eng(value.value, value.unit)} ± "
             f"{format_eng(value.stderr, value.unit)}{_against_label(fixture, value)}."
         )
-    for group in best.fit.degeneracies:
-        if group.combination in ("sum", "product") and math.isfinite(group.value):
-            joiner = " + " if group.combination == "sum" else " × "
-            parts.append(
-                f"The data determine only {joiner.join(group.members)} = "
-                f"{format_eng(group.value, group.unit) if group.combination == 'sum' else f'{group.value:.4g} {group.unit}'}"
-                f" ± {format_eng(group.stderr, group.unit) if group.combination == 'sum' else f'{group.stderr:.2g}'}."
-            )
+    parts.extend(_degeneracy_sentences(best))
+    for other in outcomes:
+        if other is best or other.failed or other.ranked.evidence != "not distinguishable":
+            continue
+        parts.append(
+            f"Candidate '{other.name}' explains the measurement as well "
+            f"(ΔBIC = {other.ranked.delta_bic:.1f}, not distinguishable)"
+        )
+        parts.extend(_degeneracy_sentences(other))
     as_measured = next((o for o in outcomes if o.name == "as-measured"), None)
     if as_measured is not None and as_measured is not best:
         if as_measured.failed:

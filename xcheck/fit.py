@@ -28,7 +28,7 @@ from xcheck.circuit import build_circuit
 from xcheck.engines.theory import characterise, simulate_theory
 from xcheck.errors import XcheckError
 from xcheck.fixture import Fixture
-from xcheck.identifiability import Degeneracy, find_degeneracies
+from xcheck.identifiability import Degeneracy, find_degeneracies, reason_for
 from xcheck.parameters import ParameterSet
 
 ObservationKind = Literal["trace", "peaks"]
@@ -180,15 +180,48 @@ def fit_candidate(fixture: Fixture, candidate: Candidate, obs: Observation) -> F
         result = _fit(fixture, candidate, obs, candidate.free)
     except (XcheckError, ValueError, FloatingPointError, np.linalg.LinAlgError) as exc:
         return FitResult(candidate.name, False, f"fit failed: {exc}")
-    if result.success and result.degeneracies:
-        collapsed = _collapse(candidate.free, result.degeneracies)
-        if collapsed != candidate.free:
-            try:
-                refit = _fit(fixture, candidate, obs, collapsed)
-            except (XcheckError, ValueError, FloatingPointError, np.linalg.LinAlgError) as exc:
-                return FitResult(candidate.name, False, f"refit failed: {exc}")
-            result = _merge_degeneracies(refit, result.degeneracies, collapsed)
+    groups: tuple[Degeneracy, ...] = ()
+    free = candidate.free
+    # Collapse what the data cannot separate and refit; a refit may reveal a further
+    # near-equivalence that the exact one hid, so repeat until nothing new appears.
+    for _ in range(len(candidate.free)):
+        if not (result.success and result.degeneracies):
+            break
+        groups = _merge_groups(groups + result.degeneracies)
+        collapsed = _collapse(candidate.free, groups)
+        if collapsed == free:
+            break
+        free = collapsed
+        try:
+            result = _fit(fixture, candidate, obs, free)
+        except (XcheckError, ValueError, FloatingPointError, np.linalg.LinAlgError) as exc:
+            return FitResult(candidate.name, False, f"refit failed: {exc}")
+    if groups:
+        result = _merge_degeneracies(result, _merge_groups(groups + tuple(result.degeneracies)), free)
     return result
+
+
+def _merge_groups(groups: tuple[Degeneracy, ...]) -> tuple[Degeneracy, ...]:
+    """Join groups that share a member; a sum joined with a sum stays a sum."""
+    merged: list[Degeneracy] = []
+    for group in groups:
+        members = list(group.members)
+        kinds = {group.combination}
+        units = {group.unit}
+        keep = []
+        for other in merged:
+            if set(members) & set(other.members):
+                members = list(dict.fromkeys(list(other.members) + members))
+                kinds.add(other.combination)
+                units.add(other.unit)
+            else:
+                keep.append(other)
+        kind = kinds.pop() if len(kinds) == 1 else "combination"
+        unit = units.pop() if len(units) == 1 else ""
+        keep.append(Degeneracy(tuple(members), kind, float("nan"), float("nan"), unit,
+                               reason_for(kind, tuple(members)), group.correlation))
+        merged = keep
+    return tuple(merged)
 
 
 def _collapse(free: tuple[FreeParameter, ...], groups: tuple[Degeneracy, ...]) -> tuple[FreeParameter, ...]:
@@ -287,7 +320,8 @@ def _fit(fixture: Fixture, candidate: Candidate, obs: Observation,
     mean_square = chi2 / n
     aic = n_eff * np.log(mean_square) + 2 * k
     bic = n_eff * np.log(mean_square) + k * np.log(n_eff)
-    degeneracies = find_degeneracies(jac_x[:, :n_free], free, physical, scale) if n_free > 1 else ()
+    degeneracies = (find_degeneracies(jac_x[:, :n_free], free, physical, scale, jac_x[:, n_free:])
+                    if n_free > 1 else ())
     del jac
     return FitResult(
         candidate=candidate.name,

@@ -21,6 +21,9 @@ import numpy as np
 NULL_RATIO = 1e-4
 #: Correlation beyond which two values are reported as poorly separated.
 HIGH_CORRELATION = 0.99
+#: Correlation beyond which two values are treated as one combination: at 0.999 the
+#: standard error of each is over 20 times that of their best-determined combination.
+INSEPARABLE_CORRELATION = 0.999
 
 
 @dataclass(frozen=True)
@@ -54,10 +57,12 @@ class Degeneracy:
 
 
 def _same(columns: np.ndarray) -> bool:
-    """True when every column equals the first within 1e-3 of its norm."""
+    """True when every column equals the first within 2 % of its norm (exactly
+    equivalent values agree to rounding; nearly equivalent ones, such as ESR seen
+    through a probe whose timing is also fitted, to within a few per mille)."""
     reference = columns[:, :1]
     size = np.linalg.norm(reference) or 1.0
-    return bool(np.all(np.linalg.norm(columns - reference, axis=0) <= 1e-3 * size))
+    return bool(np.all(np.linalg.norm(columns - reference, axis=0) <= 0.02 * size))
 
 
 def _classify(physical_columns: np.ndarray, values: np.ndarray, units: Sequence[str]) -> str:
@@ -81,6 +86,7 @@ def find_degeneracies(
     free: Sequence,  # Sequence[FreeParameter]; untyped to avoid an import cycle
     values: np.ndarray,
     scale: np.ndarray,
+    nuisance: np.ndarray | None = None,
 ) -> list[Degeneracy]:
     """Groups of free values the Jacobian cannot tell apart.
 
@@ -95,6 +101,11 @@ def find_degeneracies(
         Fitted physical values.
     scale
         Physical value per unit of x, per column.
+    nuisance
+        Jacobian columns of values also fitted but not reported (gain, offset, time
+        shift). They take part in the correlations: a value that only a nuisance value
+        can mimic is still separable, but two values that differ only in what a nuisance
+        value absorbs are not.
 
     Returns
     -------
@@ -116,7 +127,15 @@ def find_degeneracies(
         return found
     normalised = jacobian[:, live] / norms[live]
     _, singular, vt = np.linalg.svd(normalised, full_matrices=False)
+    extra = np.zeros((jacobian.shape[0], 0)) if nuisance is None else nuisance
+    extra_norms = np.linalg.norm(extra, axis=0)
+    extra = extra[:, extra_norms > 0] / extra_norms[extra_norms > 0]
+    everything = np.column_stack([normalised, extra])
     physical = jacobian / np.where(scale > 0, scale, 1.0)[None, :]
+    if extra.shape[1]:
+        # Compare columns only in what the nuisance values cannot absorb.
+        basis, _ = np.linalg.qr(extra)
+        physical = physical - basis @ (basis.T @ physical)
     member_sets: list[set[int]] = []
     for s, row in zip(singular, vt):
         if s > NULL_RATIO * singular[0]:
@@ -125,10 +144,17 @@ def find_degeneracies(
         members = set(int(m) for m in live[weight > 0.1])
         if len(members) < 2:
             continue
-        for other in [m for m in member_sets if m & members]:
-            members |= other
-            member_sets.remove(other)
-        member_sets.append(members)
+        _join(member_sets, members)
+    # Nearly equivalent values: not exactly null, but so correlated that the data
+    # cannot apportion them (a standard error many times the value).
+    gram = everything.T @ everything
+    cov = np.linalg.pinv(gram)[: live.size, : live.size]
+    d = np.sqrt(np.clip(np.diag(cov), 1e-300, None))
+    corr = cov / np.outer(d, d)
+    for i in range(live.size):
+        for j in range(i + 1, live.size):
+            if abs(corr[i, j]) > INSEPARABLE_CORRELATION:
+                _join(member_sets, {int(live[i]), int(live[j])})
     for members in member_sets:
         index = np.array(sorted(members))
         units = [free[m].unit for m in index]
@@ -136,12 +162,22 @@ def find_degeneracies(
         labels = tuple(free[m].label for m in index)
         unit = units[0] if kind == "sum" else "*".join(units) if kind == "product" else "/".join(units)
         found.append(
-            Degeneracy(labels, kind, float("nan"), float("nan"), unit, _reason(kind, labels))
+            Degeneracy(labels, kind, float("nan"), float("nan"), unit, reason_for(kind, labels))
         )
     return found
 
 
-def _reason(kind: str, labels: tuple[str, ...]) -> str:
+def _join(member_sets: list[set[int]], members: set[int]) -> None:
+    """Add ``members`` to ``member_sets``, merging every set it overlaps."""
+    members = set(members)
+    for other in [m for m in member_sets if m & members]:
+        members |= other
+        member_sets.remove(other)
+    member_sets.append(members)
+
+
+def reason_for(kind: str, labels: tuple[str, ...]) -> str:
+    """Plain-words reason for a group of values determined only in combination."""
     names = ", ".join(labels)
     if kind == "sum":
         return (f"{names} act as one series loss in this waveform: every ohm moved from one to "

@@ -50,7 +50,8 @@ def rank_by_bic(names: Sequence[str], bics: Sequence[float], failed: Sequence[bo
         Best first. ``delta_bic`` is each candidate's BIC minus the best's.
     """
     usable = [(b, n) for n, b, f in zip(names, bics, failed) if not f and math.isfinite(b)]
-    usable.sort()
+    # Stable sort on BIC alone: on a tie the simpler, earlier rung of the ladder stays first.
+    usable.sort(key=lambda item: item[0])
     best = usable[0][0] if usable else float("nan")
     ranked = [
         Ranked(n, i + 1, b, b - best, evidence_words(b - best) if i else "best")

@@ -764,7 +764,8 @@ def _read_body(
             parse_options=pacsv.ParseOptions(delimiter=delimiter),
             convert_options=pacsv.ConvertOptions(
                 column_types={names[i]: pa.float64() for i in keep},
-                include_columns=[names[i] for i in keep],
+                # Selecting columns costs time when every column is wanted anyway.
+                include_columns=[names[i] for i in keep] if len(keep) < len(names) else None,
                 decimal_point="," if layout.decimal_comma else ".",
             ),
         )

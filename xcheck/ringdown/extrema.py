@@ -129,26 +129,26 @@ def find_extrema(
     distance = max(1, int(0.6 * per_period))
     y = np.where(ok, v - offset, 0.0)
     floor = min_snr * noise_sigma / math.sqrt(2 * half + 1)
-    found: list[tuple[float, float, float, int]] = []
+    candidates: list[tuple[int, int]] = []
     for sign in (1, -1):
         peaks, _ = find_peaks(sign * y, distance=distance)
         # Samples far inside the noise cannot become significant extrema: skip early.
-        peaks = peaks[sign * y[peaks] > 0.5 * floor]
-        for row in _refine(t, v, ok, peaks, half, sign, noise_sigma):
-            found.append((*row, sign))
-    found.sort()
-    merged: list[tuple[float, float, float, int]] = []
-    for item in found:
+        candidates += [(int(i), sign) for i in peaks[sign * y[peaks] > 0.5 * floor]]
+    candidates.sort()
+    uniform = bool(np.max(np.abs(np.diff(t) - step)) <= 1e-3 * step) if len(t) > 1 else True
+    kept: list[tuple[float, float, float, int]] = []
+    for index, sign in candidates:
+        refined = _refine(t, v, ok, index, half, sign, noise_sigma, step, uniform)
+        if refined is None:
+            continue
+        item = (*refined, sign)
         # Two maxima (or minima) in a row closer than 3/4 period are one extremum seen
         # twice; further apart, the extremum between them was skipped (e.g. clipped).
-        if merged and merged[-1][3] == item[3] and item[0] - merged[-1][0] < 0.75 * period:
-            if item[3] * (item[1] - offset) > merged[-1][3] * (merged[-1][1] - offset):
-                merged[-1] = item
+        if kept and kept[-1][3] == sign and item[0] - kept[-1][0] < 0.75 * period:
+            if sign * (item[1] - offset) > sign * (kept[-1][1] - offset):
+                kept[-1] = item
             continue
-        merged.append(item)
-    kept: list[tuple[float, float, float, int]] = []
-    for item in merged:
-        size = item[3] * (item[1] - offset)
+        size = sign * (item[1] - offset)
         if size < min_snr * max(item[2], floor / min_snr):
             if not kept:
                 continue  # noise bumps before the first clear extremum (e.g. on the first edge)
@@ -161,52 +161,51 @@ def find_extrema(
 
 
 def _refine(
-    t: np.ndarray, v: np.ndarray, ok: np.ndarray, peaks: np.ndarray, half: int, sign: int, sigma: float
-) -> list[tuple[float, float, float]]:
-    """Vertex of the least-squares parabola through the samples around each peak.
+    t: np.ndarray,
+    v: np.ndarray,
+    ok: np.ndarray,
+    peak: int,
+    half: int,
+    sign: int,
+    sigma: float,
+    step: float,
+    uniform: bool,
+) -> tuple[float, float, float] | None:
+    """Vertex of the least-squares parabola through the samples around one peak.
 
-    Least squares over the ``2 half + 1`` samples centred on each peak (positions in
-    units of the median sample step). When the vertex falls outside the window (noise
-    moved the highest sample off the true extremum) the window is moved to the vertex
-    and the fit repeated, twice at most; if it still fails, the peak sample itself is
-    kept with the noise of one sample. Peaks whose window holds an excluded sample are
-    skipped. Returns (time, value, standard deviation of the value) per peak.
+    Least squares over the ``2 half + 1`` samples centred on the peak (positions in
+    units of the sample step). When the vertex falls outside the window (noise moved
+    the highest sample off the true extremum) the window is moved to the vertex and the
+    fit repeated, twice at most; if it still fails, the peak sample itself is kept with
+    the noise of one sample. None when the window holds an excluded sample or runs off
+    the record. Returns (time, value, standard deviation of the value).
     """
-    step = sample_step(t)
-    offsets = np.arange(-half, half + 1)
-    design = np.vander(offsets.astype(float), 3)
+    offsets = np.arange(-half, half + 1, dtype=float)
+    design = np.vander(offsets, 3)
     unscaled = np.linalg.inv(design.T @ design)
-    solve = unscaled @ design.T
-    out = []
-    for peak in peaks:
-        centre = int(peak)
-        result = None
-        for _ in range(3):
-            lo, hi = centre - half, centre + half + 1
-            if lo < 0 or hi > len(t) or not ok[lo:hi].all():
-                break
-            x = (t[lo:hi] - t[centre]) / step
-            if np.allclose(x, offsets, atol=1e-3):
-                c2, c1, c0 = solve @ v[lo:hi]
-                cov = unscaled
-            else:
-                (c2, c1, c0), cov = np.polyfit(x, v[lo:hi], 2, cov="unscaled")
-            if sign * c2 >= 0:
-                break
-            vertex = -c1 / (2.0 * c2)
-            if abs(vertex) <= half:
-                value = c0 - c1 * c1 / (4.0 * c2)
-                grad = np.array([c1 * c1 / (4.0 * c2 * c2), -c1 / (2.0 * c2), 1.0])
-                var = float(grad @ cov @ grad) * sigma**2
-                result = (float(t[centre] + vertex * step), float(value), math.sqrt(max(var, 0.0)))
-                break
-            centre += int(round(vertex))
-        if result is None:
-            if peak - half < 0 or peak + half >= len(t) or not ok[max(peak - half, 0) : peak + half + 1].all():
-                continue
-            result = (float(t[peak]), float(v[peak]), float(sigma))
-        out.append(result)
-    return out
+    centre = peak
+    for _ in range(3):
+        lo, hi = centre - half, centre + half + 1
+        if lo < 0 or hi > len(t) or not ok[lo:hi].all():
+            break
+        if uniform:
+            c2, c1, c0 = unscaled @ (design.T @ v[lo:hi])
+            cov = unscaled
+        else:
+            (c2, c1, c0), cov = np.polyfit((t[lo:hi] - t[centre]) / step, v[lo:hi], 2, cov="unscaled")
+        if sign * c2 >= 0:
+            break
+        vertex = -c1 / (2.0 * c2)
+        if abs(vertex) <= half:
+            value = c0 - c1 * c1 / (4.0 * c2)
+            grad = np.array([c1 * c1 / (4.0 * c2 * c2), -c1 / (2.0 * c2), 1.0])
+            var = float(grad @ cov @ grad) * sigma**2
+            return float(t[centre] + vertex * step), float(value), math.sqrt(max(var, 0.0))
+        centre += int(round(vertex))
+    lo, hi = peak - half, peak + half + 1
+    if lo < 0 or hi > len(t) or not ok[lo:hi].all():
+        return None
+    return float(t[peak]), float(v[peak]), float(sigma)
 
 
 def log_decrement(times: np.ndarray, amplitudes: np.ndarray) -> tuple[float, float]:

@@ -3,7 +3,7 @@
 Hua & Sarkar, "Matrix pencil method for estimating parameters of exponentially
 damped/undamped sinusoids in noise", IEEE Trans. ASSP 38(5), 1990. Written here with
 numpy's SVD because neither numpy nor scipy offers the method; scipy.linalg.hankel builds
-the data matrix.
+the data matrix (its SVD is taken through a QR factorisation, Y = QR, SVD of R).
 
 For uniformly sampled ``y[n] = sum_i R_i z_i^n`` the Hankel matrix ``Y[i, j] = y[i + j]``
 (``N - L`` rows, ``L + 1`` columns) has rank ``M`` (the number of exponentials). Keeping
@@ -68,7 +68,9 @@ def matrix_pencil(samples: np.ndarray, step: float, order: int, pencil: int | No
     if size < order or n - size < order:
         raise ValueError(f"{n} samples are too few for a pencil of order {order}")
     data = hankel(y[: n - size], y[n - size - 1 :])
-    _, sing, vt = np.linalg.svd(data, full_matrices=False)
+    # Right singular vectors of Y are those of R in Y = QR (Y^T Y = R^T R): the SVD of
+    # the small square R is cheaper and steadier than that of the tall Y.
+    _, sing, vt = np.linalg.svd(np.linalg.qr(data, mode="r"))
     basis = vt[:order].T
     phi = np.linalg.lstsq(basis[:-1], basis[1:], rcond=None)[0]
     z = np.linalg.eigvals(phi).astype(complex)

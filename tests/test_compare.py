@@ -1,0 +1,149 @@
+"""End-to-end comparison on seeded synthetic events with a hidden extra series loss.
+
+References: the synthetic captures come from scipy.signal.lsim (xcheck.synth), not from
+the closed-form engine the fit uses; the BIC evidence scale is Kass & Raftery (1995);
+the equivalence of series resistances in a series-RLC ring-down (alpha = R_total / 2L)
+is the textbook natural response (Nilsson & Riedel, "Electric Circuits"; from memory).
+"""
+
+from __future__ import annotations
+
+import json
+import re
+
+import numpy as np
+import pytest
+
+from compare_cases import (
+    HIDDEN_EXTRA,
+    LOSSY_JIG_TOML,
+    UNSEPARABLE_TOML,
+    hidden_truth_series_resistance,
+    write_peaks,
+    write_trace,
+)
+from xcheck.compare import run_comparison
+from xcheck.fixture import load_fixture
+from xcheck.report import summary, write_report
+
+
+@pytest.fixture
+def lossy_fixture(tmp_path):
+    path = tmp_path / "lossy_jig.toml"
+    path.write_text(LOSSY_JIG_TOML, encoding="utf-8")
+    return load_fixture(path)
+
+
+@pytest.mark.parametrize("seed", [11, 12, 13])
+def test_hidden_extra_loss_is_found_within_three_standard_errors(tmp_path, lossy_fixture, seed):
+    result = run_comparison(lossy_fixture, trace=write_trace(tmp_path, seed), use_ngspice=False)
+    best = result.best
+    assert best is not None and best.name == "extra-loss"
+    (extra,) = best.fit.fitted
+    assert extra.label == "loop.extra_resistance"
+    # Acceptance: within 3 standard errors of the hidden truth.
+    assert abs(extra.value - HIDDEN_EXTRA) < 3 * extra.stderr, (extra.value, extra.stderr)
+    # The standard error must be informative, not inflated to pass: under 2 % of the loss.
+    assert extra.stderr < 0.02 * HIDDEN_EXTRA
+    assert best.series_resistance_ohm == pytest.approx(hidden_truth_series_resistance(),
+                                                       abs=3 * extra.stderr)
+    as_measured = result.outcome("as-measured")
+    assert as_measured.ranked.delta_bic > 10  # decisive (Kass & Raftery 1995)
+    assert as_measured.ranked.evidence == "decisive"
+
+
+def test_peak_table_of_the_same_event_gives_the_same_verdict(tmp_path, lossy_fixture):
+    result = run_comparison(lossy_fixture, peaks=write_peaks(tmp_path, 11), use_ngspice=False)
+    best = result.best
+    assert best is not None and best.name == "extra-loss"
+    (extra,) = best.fit.fitted
+    assert abs(extra.value - HIDDEN_EXTRA) < 3 * extra.stderr, (extra.value, extra.stderr)
+    assert result.outcome("as-measured").ranked.delta_bic > 10
+
+
+def test_ngspice_agrees_with_the_fast_engine_on_fitted_candidates(tmp_path, lossy_fixture):
+    result = run_comparison(lossy_fixture, trace=write_trace(tmp_path, 11), use_ngspice=True)
+    for outcome in result.outcomes:
+        assert outcome.ngspice is not None, outcome.engine_notes
+        # Engines agree to ~2.5e-5 of the amplitude (tested in test_engine_agreement);
+        # 1e-3 is the flagging limit.
+        assert outcome.engine_disagreement < 1e-3
+        assert not outcome.engines_disagree
+        assert outcome.ngspice.nrmse == pytest.approx(outcome.theory.nrmse, rel=0.02)
+
+
+def test_two_unmeasured_losses_are_reported_as_their_sum(tmp_path):
+    path = tmp_path / "unseparable.toml"
+    path.write_text(UNSEPARABLE_TOML, encoding="utf-8")
+    fixture = load_fixture(path)
+    result = run_comparison(fixture, trace=write_trace(tmp_path, 21), use_ngspice=False)
+    best = result.outcome("all-unknowns")
+    # Freeing the unmeasured losses adds nothing the lumped extra loss did not already
+    # explain: the two candidates are not distinguishable (Kass & Raftery: dBIC < 2).
+    assert abs(best.ranked.delta_bic - result.outcome("extra-loss").ranked.delta_bic) < 2
+    groups = [g for g in best.fit.degeneracies if g.combination == "sum"]
+    assert len(groups) == 1
+    members = set(groups[0].members)
+    assert {"C1.esr", "L1.dcr", "loop.extra_resistance"} == members
+    # The determined sum is the hidden ESR + extra loss (0.02 + 0.35 ohm); DCR truth 0.
+    assert groups[0].value == pytest.approx(0.37, abs=3 * groups[0].stderr)
+    assert "only their sum is determined" in groups[0].reason
+    # The verdict gives the sum, never the members as separate confident numbers.
+    assert " + ".join(groups[0].members) in result.verdict
+    assert not re.search(r"Fitted (C1\.esr|L1\.dcr) =", result.verdict)
+
+
+def test_summary_json_and_report_md_carry_the_same_numbers(tmp_path, lossy_fixture):
+    result = run_comparison(lossy_fixture, trace=write_trace(tmp_path, 12), use_ngspice=False)
+    folder = write_report(result, tmp_path / "report")
+    data = json.loads((folder / "summary.json").read_text(encoding="utf-8"))
+    text = (folder / "report.md").read_text(encoding="utf-8")
+    assert data["best"] == "extra-loss"
+    assert f"candidate '{data['best']}'" in text
+    rows = {}
+    for line in text.splitlines():
+        cells = [c.strip() for c in line.strip("|").split("|")]
+        if len(cells) == 11 and cells[1] in {c["name"] for c in data["candidates"]}:
+            rows[cells[1]] = cells
+    assert set(rows) == {c["name"] for c in data["candidates"]}
+    for item in data["candidates"]:
+        row = rows[item["name"]]
+        assert row[0] == str(item["rank"])
+        # NRMSE is printed as a percentage with 3 significant digits.
+        assert float(row[4].rstrip(" %")) == pytest.approx(100 * item["nrmse"], rel=5e-3)
+        if item["rank"] != 1:
+            assert float(row[2]) == pytest.approx(item["delta_bic"], rel=5e-3)
+    extra = data["candidates"][0]["fitted"]["loop.extra_resistance"]
+    assert f"{extra * 1e3:.4g} mΩ" in text.replace("\u202f", " ")
+    for item in data["inputs"]:
+        assert item["sha256"] in text
+    m = data["measured"]
+    assert f"{m['damped_frequency_hz']['value']:.6g} Hz" in text
+
+
+def test_summary_schema_has_the_documented_keys(tmp_path, lossy_fixture):
+    result = run_comparison(lossy_fixture, trace=write_trace(tmp_path, 13), use_ngspice=False)
+    data = summary(result)
+    assert data["schema"] == "xcheck-summary" and data["schema_version"] == 1
+    for item in data["candidates"]:
+        for key in ("name", "rank", "nrmse", "bic", "failed", "fitted", "series_resistance_ohm"):
+            assert key in item
+    measured = data["measured"]
+    for key in ("damped_frequency_hz", "neper_frequency_per_s", "initial_volts"):
+        assert set(measured[key]) >= {"value", "stderr"}
+    assert isinstance(measured["envelope_exponential"], bool)
+    assert isinstance(measured["flagged_extrema"], list)
+    json.dumps(data, allow_nan=False)  # strictly valid JSON
+
+
+def test_a_candidate_that_cannot_be_built_is_reported_failed_not_raised(tmp_path):
+    text = LOSSY_JIG_TOML.replace('nominal = "220u"\nmeasured = "215u"', 'nominal = "?"')
+    path = tmp_path / "unknown_l.toml"
+    path.write_text(text, encoding="utf-8")
+    result = run_comparison(load_fixture(path), trace=write_trace(tmp_path, 11), use_ngspice=False)
+    label = result.outcome("label")
+    assert label.failed and "L1" in label.fit.message
+    assert label.ranked.rank is None
+    assert result.best is not None and not result.best.failed
+    fitted_l = {v.label: v for v in result.best.fit.fitted}["L1.value"]
+    assert fitted_l.value == pytest.approx(215e-6, abs=3 * fitted_l.stderr)
