@@ -74,7 +74,10 @@ def _paragraph(message: str) -> str:
 def main(argv: Sequence[str] | None = None) -> int:
     """Run xcheck with ``argv`` (default: the process arguments); return the exit status."""
     parser = build_parser()
-    args = parser.parse_args(argv)
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:  # usage errors (2), --help and --version (0)
+        return exc.code if isinstance(exc.code, int) else EXIT_BAD_INPUT
     if not getattr(args, "_run", None):
         parser.print_help(sys.stderr)
         return EXIT_BAD_INPUT
