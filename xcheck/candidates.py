@@ -128,6 +128,24 @@ def series_resistance(fixture: Fixture, parameters: ParameterSet) -> float:
     return float(sum(parameters.get(k, 0.0) or 0.0 for k in series_resistance_keys(fixture)))
 
 
+def measured_bounds(fixture: Fixture, key: ParameterKey) -> tuple[float, float, float] | None:
+    """Start and bounds (measured value +/- 3 standard uncertainties) for a part value
+    that a meter measured, or None when it was not measured.
+
+    Resistances use :func:`meter_uncertainty` of the reading; measured L and C use 1 %
+    of the value (a typical handheld LCR meter; common practice, no source).
+    """
+    part = fixture.parts.get(key[0])
+    if part is None or key[1] != "value" or part.measured is None:
+        return None
+    value = part.measured
+    if part.kind == "resistor":
+        sigma = meter_uncertainty(part.meter.reading if part.meter else value)
+    else:
+        sigma = 0.01 * abs(value)
+    return value, max(value - 3 * sigma, 0.0), value + 3 * sigma
+
+
 def meter_uncertainty(reading: float) -> float:
     """Assumed standard uncertainty (ohms) of a two-wire low-ohm reading."""
     return METER_RELATIVE_UNCERTAINTY * abs(reading) + METER_ABSOLUTE_UNCERTAINTY_OHM
@@ -419,9 +437,10 @@ def _custom_candidate(
     if not isinstance(body, Mapping):
         problems.append(f"{where} must be a table with base, free, description and optional set")
         return None
-    unknown_keys = set(body) - {"base", "free", "description", "set"}
+    unknown_keys = set(body) - {"base", "free", "description", "set", "release"}
     if unknown_keys:
-        problems.append(f"{where}: unknown keys {sorted(unknown_keys)}; allowed: base, free, description, set")
+        problems.append(f"{where}: unknown keys {sorted(unknown_keys)}; allowed: base, free, "
+                        "description, set, release")
     base_name = body.get("base", "as-measured")
     if base_name not in by_name:
         problems.append(f"{where}.base is {base_name!r}; use one of {', '.join(DEFAULT_NAMES)}")
@@ -446,6 +465,10 @@ def _custom_candidate(
     if not isinstance(free_list, list):
         problems.append(f"{where}.free must be a list such as [\"C1.esr\"]")
         free_list = []
+    release = body.get("release", [])
+    if not isinstance(release, list) or not all(isinstance(r, str) for r in release):
+        problems.append(f"{where}.release must be a list such as [\"R1.value\"]")
+        release = []
     free = []
     for text in free_list:
         key = _parse_key(fixture, text, f"{where}.free", problems)
@@ -456,6 +479,11 @@ def _custom_candidate(
             free.append(_extra_loss_parameter(fixture, parameters))
             continue
         start, lower, upper = _guess(fixture, key, unit, parameters)
-        free.append(FreeParameter(key, start, lower, upper, unit, reason=f"free in {name}"))
+        reason = f"free in {name}"
+        held = measured_bounds(fixture, key)
+        if held is not None and text not in release:
+            start, lower, upper = held
+            reason += "; held within its measurement uncertainty (list it in release to free it)"
+        free.append(FreeParameter(key, start, lower, upper, unit, reason=reason))
     description = str(body.get("description", f"fixture's own candidate based on {base_name}"))
     return _checked(fixture, name, description, parameters, tuple(free))
