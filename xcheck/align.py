@@ -67,7 +67,9 @@ class Alignment:
         natural response the charged voltage (plus any DC offset of the scope), for a
         step the offset. NaN without pre-event samples.
     noise_rms
-        Pre-event noise (V): RMS of the residuals from the fitted line.
+        Pre-event noise (V): RMS of the residuals from the fitted line, as observed (a
+        baseline quieter than one quantisation step can show less than the
+        step / sqrt(12) a moving signal carries; a note says so).
     droop_per_s
         Pre-event slope (V/s), e.g. leakage and probe loading discharging the capacitor.
     inverted
@@ -138,11 +140,10 @@ def _threshold(count: int) -> float:
     return float(student_t.isf(normal.sf(THRESHOLD_SIGMA), dof))
 
 
-def _floor(trace: Trace, v: np.ndarray) -> float:
-    """Smallest noise figure worth believing: a quantisation step, or rounding."""
+def _floor(resolution: float | None, v: np.ndarray) -> float:
+    """Smallest departure worth believing: 1.5 quantisation steps, or rounding."""
     scale = float(np.max(np.abs(v))) if v.size else 1.0
-    step = trace.resolution or estimate_resolution(v) or 0.0
-    return max(1.5 * step, 1e-12 * scale, np.finfo(float).tiny)
+    return max(1.5 * (resolution or 0.0), 1e-12 * scale, np.finfo(float).tiny)
 
 
 def _robust_line(t: np.ndarray, v: np.ndarray) -> _Line:
@@ -366,7 +367,8 @@ def align_trace(
         raise ValueError(f"expected_sign must be +1, -1 or None, got {expected_sign!r}")
     t, v = trace.time, trace.voltage
     notes: list[str] = []
-    floor = _floor(trace, v)
+    resolution = trace.resolution or estimate_resolution(v)
+    floor = _floor(resolution, v)
     step = float(np.median(np.diff(t)))
     manual = event_time is not None
     if manual:
@@ -404,6 +406,15 @@ def align_trace(
         line = _fit_line(t[pre], v[pre])
         baseline = float(line.predict(np.array([event]))[0])
         droop, noise = line.slope, line.sigma
+        if resolution and noise < 0.5 * resolution / math.sqrt(12.0):
+            # Quantisation error is uniform over one step (variance step^2 / 12, the
+            # usual model of a quantiser) once the signal moves; a quieter baseline
+            # hides it by sitting in one or two codes.
+            notes.append(
+                f"the baseline varies less than one quantisation step ({noise:.3g} V rms "
+                f"measured); a moving signal carries about step / sqrt(12) = "
+                f"{resolution / math.sqrt(12.0):.3g} V rms of quantisation noise"
+            )
     else:
         line = None
         baseline = droop = noise = math.nan
@@ -421,7 +432,7 @@ def align_trace(
                 f"at least {MIN_SAMPLES} are needed: move the trigger earlier in the record"
             ],
         )
-    swing = _first_swing(t, v, event, line, baseline, noise, floor)
+    swing = _first_swing(t, v, event, line, noise, floor)
     inverted = False
     if swing == 0:
         notes.append("the first swing after the event is within the noise: its sign is unknown")
@@ -464,13 +475,7 @@ def align_trace(
 
 
 def _first_swing(
-    t: np.ndarray,
-    v: np.ndarray,
-    event: float,
-    line: _Line | None,
-    baseline: float,
-    noise: float,
-    floor: float,
+    t: np.ndarray, v: np.ndarray, event: float, line: _Line | None, noise: float, floor: float
 ) -> int:
     """Sign (+1, -1, or 0 when unclear) of the trace's first clear move after the event."""
     after = t >= event
@@ -509,7 +514,7 @@ def _level_notes(
                 "the first swing moves away from zero, not towards it as a discharging "
                 "capacitor would: the level before the event may carry a large DC offset"
             )
-    elif abs(baseline) > max(0.2 * size, 5.0 * noise):
+    elif abs(baseline) > max(0.01 * size, 5.0 * noise):
         notes.append(
             f"the level before the step is {baseline:.6g} V, not zero: a DC offset of the "
             "channel or the source (the fit takes its own offset)"

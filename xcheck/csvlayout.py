@@ -244,15 +244,24 @@ def _sniff_delimiter(src: Source, lines: list[Line]) -> tuple[str | None, bool, 
     tail = [line.text for line in lines if line.text.strip()][-50:]
     if not tail:
         raise TraceError(src.name, ["the file has no data rows; export the capture again"])
+
+    def mostly_data(delimiter: str | None, decimal_comma: bool, n_fields: int) -> bool:
+        # From the first data row on (a short file's tail still holds its preamble),
+        # at least 80 % of the lines must be data rows.
+        flags = [is_data_row(t, delimiter, decimal_comma, n_fields) for t in tail]
+        if True not in flags:
+            return False
+        rest = flags[flags.index(True) :]
+        return sum(rest) >= 0.8 * len(rest)
+
     for delimiter in (";", "\t", ","):
-        n_fields = Counter(len(text.split(delimiter)) for text in tail).most_common(1)[0][0]
+        n_fields = Counter(len(text.split(delimiter)) for text in tail[-10:]).most_common(1)[0][0]
         if n_fields < 2:
             continue
         for decimal_comma in (False, True) if delimiter != "," else (False,):
-            good = sum(is_data_row(t, delimiter, decimal_comma, n_fields) for t in tail)
-            if good >= 0.8 * len(tail):
+            if mostly_data(delimiter, decimal_comma, n_fields):
                 return delimiter, decimal_comma, n_fields
-    if sum(is_data_row(t, None, False, 1) for t in tail) >= 0.8 * len(tail):
+    if mostly_data(None, False, 1):
         return None, False, 1
     raise TraceError(
         src.name,
@@ -266,11 +275,13 @@ def _sniff_delimiter(src: Source, lines: list[Line]) -> tuple[str | None, bool, 
 
 def _header_like(text: str, delimiter: str | None, n_fields: int, decimal_comma: bool) -> bool:
     fields = split(text, delimiter)
+    while len(fields) > n_fields and not fields[-1]:
+        fields.pop()  # a trailing separator the data rows do not have
     filled = [f for f in fields if f]
     if not filled or len(fields) > n_fields or any(is_number(f, decimal_comma) for f in filled):
         return False
-    if n_fields == 1:
-        return not re.search(r"[:=]", text)
+    if n_fields == 1:  # a lone name: no key-value pair, no separators
+        return not re.search(r"[:=,;\t]", text)
     return len(fields) >= 2
 
 
@@ -290,6 +301,8 @@ def _units_row(text: str, delimiter: str | None) -> list[str | None] | None:
 
 def _metadata_entry(line: Line, delimiter: str | None) -> tuple[str, str]:
     text = line.text.strip()
+    if delimiter is None:  # one-column data: the preamble may use any separator
+        delimiter = next((d for d in (",", ";", "\t") if d in text), None)
     if delimiter and delimiter in text:
         key, _, value = text.partition(delimiter)
         value = value.strip().rstrip(delimiter).strip()

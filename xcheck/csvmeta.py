@@ -147,7 +147,7 @@ def read_metadata(layout: Layout, channel: Column, problems: list[str]) -> Meta:
         if key_channel is not None and key_channel != wanted_channel:
             continue  # about another channel
         line = layout.metadata_lines[key]
-        parts = value.split(layout.delimiter) if layout.delimiter else [value]
+        parts = value.split(layout.delimiter) if layout.delimiter else re.split(r"[,;\t]", value)
         fields = [f for f in (clean(p) for p in parts) if f]
         if not fields:
             continue

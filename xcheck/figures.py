@@ -63,11 +63,13 @@ def overlay_figure(path: Path, time: np.ndarray, measured: np.ndarray,
     axis.plot(time * factor, measured, linestyle="none", marker="o",
               markersize=5 if peaks else 1.6, color="#222222", label="measured", zorder=3)
     for i, (label, curve) in enumerate(curves):
-        axis.plot(time * factor, curve, linestyle=LINE_STYLES[i % len(LINE_STYLES)],
+        axis.plot(time * factor, curve,
+                  linestyle="none" if peaks else LINE_STYLES[i % len(LINE_STYLES)],
                   color=SHADES[i % len(SHADES)], linewidth=1.4,
-                  marker=MARKERS[i % len(MARKERS)] if peaks else None,
-                  markersize=4, label=label, zorder=2)
-    axis.set_xlabel(f"time from the event ({prefix}s)")
+                  marker=MARKERS[(i + 1) % len(MARKERS)] if peaks else None,
+                  markersize=6, markerfacecolor="none", label=label, zorder=2)
+    axis.set_xlabel(f"time from the first reading ({prefix}s)" if peaks
+                    else f"time from the event ({prefix}s)")
     axis.set_ylabel("probe voltage (V)")
     axis.set_title(title, fontsize=10)
     axis.legend(fontsize=8, frameon=False)
