@@ -218,7 +218,11 @@ def measure(
                                  exclude=excluded, resolution=raw.resolution)
     findings = []
     if excluded.any():
-        findings.append(f"{int(excluded.sum())} clipped samples were left out of every fit.")
+        findings.append(
+            f"{int(excluded.sum())} samples sat in runs at the record's extreme value (clipping "
+            "at the converter's rail, or a quiet level resting on one converter step) and were "
+            "left out of every fit."
+        )
     if alignment.inverted:
         findings.append("The probe looks inverted: the trace's polarity is opposite to the fixture's.")
     notes = list(alignment.notes)

@@ -315,6 +315,12 @@ def _check_values(circuit: Circuit) -> None:
     for element in circuit.elements:
         if element.kind not in _TREE_ORDER:
             problems.append(f"{element.name} has unknown kind {element.kind!r}")
+        elif element.kind == "R" and element.role == "extra_resistance" and (
+            np.isfinite(element.value) and element.value != 0
+        ):
+            # A fitted lumped correction may be negative (the stated losses were too
+            # high); the loop's total resistance is checked by whoever fits it.
+            continue
         elif element.kind != "V" and not (np.isfinite(element.value) and element.value > 0):
             problems.append(f"{element.name} = {element.value!r} (expected a positive value)")
         elif not np.isfinite(element.value):
