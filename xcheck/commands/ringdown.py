@@ -40,24 +40,71 @@ PNG_NAME = "ringdown.png"
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     """Register the ``ringdown`` subcommand's arguments."""
-    parser.add_argument("trace", type=Path, metavar="TRACE", help="waveform file (CSV, optionally .gz) or, with --peaks, a peak table")
-    parser.add_argument("--column", default=None, help="channel to use: header name (e.g. 'ch1') or 0-based index")
-    parser.add_argument("--time-column", default=None, help="time (or sample-number) column, by name or 0-based index")
-    parser.add_argument("--peaks", action="store_true", help="TRACE is a table of extrema read off scope cursors")
-    parser.add_argument("--json", type=Path, metavar="FILE", default=None, help="also write the numbers to FILE (JSON, SI units)")
-    parser.add_argument("--out", type=Path, metavar="PNG", default=None,
-                        help="figure to write (default: reports/<trace name>/ringdown/ringdown.png)")
-    parser.add_argument("--event-time", default=None, metavar="T",
-                        help="event time in the file's time base, e.g. '1.5m' (default: found from the trace)")
-    parser.add_argument("--expect", choices=("natural", "step"), default="natural",
-                        help="what the event is: a charged capacitor released (natural) or a step (default natural)")
-    parser.add_argument("--modes", type=int, default=1, metavar="N", help="damped sinusoids to fit (default 1)")
-    parser.add_argument("--capacitance", default=None, metavar="C",
-                        help="known loop capacitance, e.g. '47u': reports the implied L and series R")
-    parser.add_argument("--inductance", default=None, metavar="L",
-                        help="known loop inductance, e.g. '10u': reports the implied C and series R")
-    parser.add_argument("--capacitance-stderr", default="0", metavar="dC", help="standard error of --capacitance")
-    parser.add_argument("--inductance-stderr", default="0", metavar="dL", help="standard error of --inductance")
+    parser.add_argument(
+        "trace",
+        type=Path,
+        metavar="TRACE",
+        help="waveform file (CSV, optionally .gz) or, with --peaks, a peak table",
+    )
+    parser.add_argument(
+        "--column", default=None, help="channel to use: header name (e.g. 'ch1') or 0-based index"
+    )
+    parser.add_argument(
+        "--time-column",
+        default=None,
+        help="time (or sample-number) column, by name or 0-based index",
+    )
+    parser.add_argument(
+        "--peaks", action="store_true", help="TRACE is a table of extrema read off scope cursors"
+    )
+    parser.add_argument(
+        "--json",
+        type=Path,
+        metavar="FILE",
+        default=None,
+        help="also write the numbers to FILE (JSON, SI units)",
+    )
+    parser.add_argument(
+        "--out",
+        type=Path,
+        metavar="PNG",
+        default=None,
+        help="figure to write (default: reports/<trace name>/ringdown/ringdown.png)",
+    )
+    parser.add_argument(
+        "--event-time",
+        default=None,
+        metavar="T",
+        help="event time in the file's time base, e.g. '1.5m' (default: found from the trace)",
+    )
+    parser.add_argument(
+        "--expect",
+        choices=("natural", "step"),
+        default="natural",
+        help="what the event is: a charged capacitor released (natural) or a step "
+        "(default natural)",
+    )
+    parser.add_argument(
+        "--modes", type=int, default=1, metavar="N", help="damped sinusoids to fit (default 1)"
+    )
+    parser.add_argument(
+        "--capacitance",
+        default=None,
+        metavar="C",
+        help="known loop capacitance, e.g. '47u': reports the implied L and series R",
+    )
+    parser.add_argument(
+        "--inductance",
+        default=None,
+        metavar="L",
+        help="known loop inductance, e.g. '10u': reports the implied C and series R",
+    )
+    parser.add_argument(
+        "--capacitance-stderr", default="0", metavar="dC", help="standard error of --capacitance"
+    )
+    parser.add_argument(
+        "--inductance-stderr", default="0", metavar="dL", help="standard error of --inductance"
+    )
 
 
 def _value(option: str, text: str | None, unit: str) -> float | None:
@@ -88,13 +135,17 @@ def run(args: argparse.Namespace) -> int:
         if number is not None and number <= 0:
             raise XcheckError(f"{option}: expected a positive value, got {number!r}")
     if c_err < 0 or l_err < 0:
-        raise XcheckError("--capacitance-stderr/--inductance-stderr: expected zero or a positive value")
+        raise XcheckError(
+            "--capacitance-stderr/--inductance-stderr: expected zero or a positive value"
+        )
     context: list[str] = []
     if args.peaks:
         from xcheck.trace import read_peaks
 
         table = read_peaks(args.trace)
-        estimate = estimate_from_peaks(table.time, table.voltage, table.uncertainty, source=table.source)
+        estimate = estimate_from_peaks(
+            table.time, table.voltage, table.uncertainty, source=table.source
+        )
         measured = (np.asarray(table.time), np.asarray(table.voltage), None)
         context.append(f"peak table {table.source}: {len(table)} extrema")
         alignment_json = None
@@ -102,15 +153,34 @@ def run(args: argparse.Namespace) -> int:
         from xcheck.align import align_trace
         from xcheck.trace import read_trace
 
-        trace = read_trace(args.trace, column=_index_or_name(args.column), time_column=_index_or_name(args.time_column))
-        aligned, alignment = align_trace(trace, event_time=event_time, expect=args.expect)
-        noise = alignment.noise_rms if math.isfinite(alignment.noise_rms) and alignment.noise_rms > 0 else None
-        estimate = estimate_ringdown(
-            aligned.time, aligned.voltage, noise_sigma=noise, exclude=aligned.clipped,
-            modes=args.modes, resolution=trace.resolution, source=trace.source,
+        trace = read_trace(
+            args.trace,
+            column=_index_or_name(args.column),
+            time_column=_index_or_name(args.time_column),
         )
-        measured = (np.asarray(aligned.time), np.asarray(aligned.voltage), np.asarray(aligned.clipped))
-        context += _alignment_lines(trace.source, trace.column, alignment, int(np.sum(aligned.clipped)))
+        aligned, alignment = align_trace(trace, event_time=event_time, expect=args.expect)
+        noise = (
+            alignment.noise_rms
+            if math.isfinite(alignment.noise_rms) and alignment.noise_rms > 0
+            else None
+        )
+        estimate = estimate_ringdown(
+            aligned.time,
+            aligned.voltage,
+            noise_sigma=noise,
+            exclude=aligned.clipped,
+            modes=args.modes,
+            resolution=trace.resolution,
+            source=trace.source,
+        )
+        measured = (
+            np.asarray(aligned.time),
+            np.asarray(aligned.voltage),
+            np.asarray(aligned.clipped),
+        )
+        context += _alignment_lines(
+            trace.source, trace.column, alignment, int(np.sum(aligned.clipped))
+        )
         alignment_json = {
             "event_time_s": alignment.event_time,
             "baseline_volts": alignment.baseline,
@@ -123,8 +193,13 @@ def run(args: argparse.Namespace) -> int:
         }
     derived = None
     if capacitance is not None or inductance is not None:
-        derived = derive_circuit(estimate, capacitance=capacitance, inductance=inductance,
-                                 capacitance_stderr=c_err, inductance_stderr=l_err)
+        derived = derive_circuit(
+            estimate,
+            capacitance=capacitance,
+            inductance=inductance,
+            capacitance_stderr=c_err,
+            inductance_stderr=l_err,
+        )
     png = args.out or DEFAULT_ROOT / args.trace.name.split(".")[0] / "ringdown" / PNG_NAME
     _atomic_write(png, lambda tmp: write_figure(tmp, estimate, *measured, title=str(args.trace)))
     written = [png]
@@ -135,11 +210,22 @@ def run(args: argparse.Namespace) -> int:
             data["alignment"] = alignment_json
         if derived is not None:
             data["derived"] = derived.to_json()
-        text = json.dumps(data, indent=2, allow_nan=True)
+        text = json.dumps(_plain(data), indent=2, allow_nan=False)
         _atomic_write(args.json, lambda tmp: tmp.write_text(text + "\n", encoding="utf-8"))
         written.append(args.json)
     print(summary_text(estimate, derived, context, written))
     return 0
+
+
+def _plain(data: object) -> object:
+    """JSON-safe copy: non-finite floats become null (JSON has no NaN or infinity)."""
+    if isinstance(data, dict):
+        return {k: _plain(v) for k, v in data.items()}
+    if isinstance(data, (list, tuple)):
+        return [_plain(v) for v in data]
+    if isinstance(data, float) and not math.isfinite(data):
+        return None
+    return data
 
 
 def _alignment_lines(source: str, column: str, a: Alignment, clipped: int) -> list[str]:
@@ -151,7 +237,9 @@ def _alignment_lines(source: str, column: str, a: Alignment, clipped: int) -> li
         f"droop {format_eng(a.droop_per_s, 'V')}/s"
     )
     if a.inverted:
-        lines.append("the first swing has the opposite sign to the one expected: inverted probe or channel?")
+        lines.append(
+            "the first swing has the opposite sign to the one expected: inverted probe or channel?"
+        )
     if clipped:
         lines.append(f"{clipped} clipped samples after the event are left out of the fit")
     lines += list(a.notes)
@@ -162,7 +250,9 @@ def _digits(value: float, stderr: float) -> int:
     """Significant digits that show ``value`` down to two digits of its standard error."""
     if not (math.isfinite(value) and math.isfinite(stderr)) or value == 0 or stderr <= 0:
         return 4
-    return int(min(max(math.floor(math.log10(abs(value))) - math.floor(math.log10(stderr)) + 2, 3), 12))
+    return int(
+        min(max(math.floor(math.log10(abs(value))) - math.floor(math.log10(stderr)) + 2, 3), 12)
+    )
 
 
 def _row(label: str, item: Estimate | None, unit: str) -> list[str] | None:
@@ -204,7 +294,10 @@ def table_rows(estimate: RingdownEstimate, derived: DerivedCircuit | None) -> li
 
 
 def summary_text(
-    estimate: RingdownEstimate, derived: DerivedCircuit | None, context: list[str], written: list[Path]
+    estimate: RingdownEstimate,
+    derived: DerivedCircuit | None,
+    context: list[str],
+    written: list[Path],
 ) -> str:
     """Everything ``xcheck ringdown`` prints."""
     header = ["quantity", "value", "std. error", "CRB"]
@@ -214,7 +307,8 @@ def summary_text(
     lines.append(f"method: {estimate.method}")
     lines.append(
         f"samples used {estimate.samples_used}, excluded {estimate.samples_excluded}, "
-        f"effective {estimate.effective_samples:.0f}; noise {format_eng(estimate.noise_sigma, 'V')} "
+        f"effective {estimate.effective_samples:.0f}; "
+        f"noise {format_eng(estimate.noise_sigma, 'V')} "
         f"({estimate.noise_source}); residual rms {format_eng(estimate.residual_rms, 'V')}"
     )
     lines.append("")
@@ -232,7 +326,8 @@ def summary_text(
         lines.append(
             f"  {which} the flagged extrema: f_d {format_eng(alt.damped_frequency.value, 'Hz', 6)} "
             f"± {format_eng(alt.damped_frequency.stderr, 'Hz', 2)}, alpha "
-            f"{format_eng(alt.neper_frequency.value, 'Np/s', 5)} ± {format_eng(alt.neper_frequency.stderr, 'Np/s', 2)}"
+            f"{format_eng(alt.neper_frequency.value, 'Np/s', 5)} "
+            f"± {format_eng(alt.neper_frequency.stderr, 'Np/s', 2)}"
         )
     for note in estimate.notes + (derived.notes if derived else ()):
         lines.append(f"note: {note}")
@@ -264,18 +359,34 @@ def write_figure(
 
     from xcheck.figures import time_scale
 
-    span = float(np.max(time)) if len(time) else 1.0
+    et = np.asarray(estimate.extrema_time)
+    span = _shown_span(estimate, time, et)
     factor, prefix = time_scale(max(span, 1e-15))
-    fig, (top, bottom) = plt.subplots(2, 1, figsize=(8.0, 6.4), dpi=110, gridspec_kw={"height_ratios": [3, 2]})
+    fig, (top, bottom) = plt.subplots(
+        2, 1, figsize=(8.0, 6.4), dpi=110, gridspec_kw={"height_ratios": [3, 2]}
+    )
     peaks = excluded is None
-    dense = np.linspace(min(0.0, float(np.min(time))), float(np.max(time)), 2000)
+    dense = np.linspace(min(0.0, float(np.min(time))), span, 2000)
     if not peaks:  # a peak table's readings are drawn below as the extrema
-        top.plot(time * factor, voltage, color="#b0b0b0", linewidth=0.8, label="measured")
+        top.plot(time * factor, voltage, color="#9a9a9a", linewidth=1.4, label="measured")
         if excluded.any():
-            top.plot(time[excluded] * factor, voltage[excluded], linestyle="none", marker="x",
-                     markersize=3, color="#555555", label="excluded (clipped)")
-    top.plot(dense * factor, estimate.model(dense), color="black", linestyle="--", linewidth=1.1,
-             label="fitted model")
+            top.plot(
+                time[excluded] * factor,
+                voltage[excluded],
+                linestyle="none",
+                marker="x",
+                markersize=3,
+                color="#555555",
+                label="excluded (clipped)",
+            )
+    top.plot(
+        dense * factor,
+        estimate.model(dense),
+        color="black",
+        linestyle=(0, (3, 2)),
+        linewidth=0.9,
+        label="fitted model",
+    )
     top.axhline(estimate.offset.value, color="#777777", linestyle=":", linewidth=0.8)
     top.set_ylabel("voltage (V)")
     top.set_title(
@@ -283,37 +394,80 @@ def write_figure(
         f"alpha = {format_eng(estimate.neper_frequency.value, 'Np/s', 4)}",
         fontsize=9,
     )
-    et = np.asarray(estimate.extrema_time)
     ev = np.abs(np.asarray(estimate.extrema_value) - estimate.offset.value)
     flagged = np.zeros(len(et), dtype=bool)
     flagged[estimate.flagged_extrema] = True
     for axis, values in ((top, np.asarray(estimate.extrema_value)), (bottom, ev)):
-        axis.plot(et[~flagged] * factor, values[~flagged], linestyle="none", marker="o", markersize=5,
-                  markerfacecolor="none", markeredgecolor="black", label="readings used" if peaks else "extrema used")
+        axis.plot(
+            et[~flagged] * factor,
+            values[~flagged],
+            linestyle="none",
+            marker="o",
+            markersize=5,
+            markerfacecolor="none",
+            markeredgecolor="black",
+            label="readings used" if peaks else "extrema used",
+        )
         if flagged.any():
-            axis.plot(et[flagged] * factor, values[flagged], linestyle="none", marker="^", markersize=8,
-                      color="black", label="flagged readings" if peaks else "flagged extrema")
+            axis.plot(
+                et[flagged] * factor,
+                values[flagged],
+                linestyle="none",
+                marker="^",
+                markersize=8,
+                color="black",
+                label="flagged readings" if peaks else "flagged extrema",
+            )
     for i in estimate.flagged_extrema:
-        bottom.annotate(f"#{i}", (et[i] * factor, ev[i]), textcoords="offset points", xytext=(6, 4), fontsize=8)
-    line_t = np.linspace(0.0, max(span, float(np.max(et)) if len(et) else span), 200)
-    bottom.plot(line_t * factor, estimate.envelope_at(line_t), color="black", linewidth=1.0,
-                label="fitted envelope")
+        bottom.annotate(
+            f"#{i}", (et[i] * factor, ev[i]), textcoords="offset points", xytext=(6, 4), fontsize=8
+        )
+    line_t = np.linspace(0.0, span, 200)
+    bottom.plot(
+        line_t * factor,
+        estimate.envelope_at(line_t),
+        color="black",
+        linewidth=1.0,
+        label="fitted envelope",
+    )
     if estimate.alternate is not None:
         which = "with flagged" if estimate.excludes_flagged else "without flagged"
-        bottom.plot(line_t * factor, estimate.alternate.envelope_at(line_t), color="#666666",
-                    linestyle=(0, (4, 2)), linewidth=1.0, label=f"envelope {which}")
+        bottom.plot(
+            line_t * factor,
+            estimate.alternate.envelope_at(line_t),
+            color="#666666",
+            linestyle=(0, (4, 2)),
+            linewidth=1.0,
+            label=f"envelope {which}",
+        )
     bottom.set_yscale("log")
     if len(ev) and np.all(ev > 0):
         bottom.set_ylim(ev.min() / 3.0, ev.max() * 3.0)
     bottom.set_ylabel("|extremum - offset| (V)")
     bottom.set_xlabel(f"time from the event ({prefix}s)" if not peaks else f"time ({prefix}s)")
     for axis in (top, bottom):
+        axis.set_xlim(min(0.0, float(np.min(time))) * factor, span * factor)
         axis.grid(True, which="major", linestyle=(0, (1, 3)), linewidth=0.6, color="#9a9a9a")
         axis.legend(fontsize=7, frameon=False, loc="upper right")
         axis.tick_params(labelsize=8)
     fig.tight_layout()
     fig.savefig(path, format="png")
     plt.close(fig)
+
+
+def _shown_span(estimate: RingdownEstimate, time: np.ndarray, extrema_time: np.ndarray) -> float:
+    """End of the time axis shown: the ringing and a little after, not a long quiet tail."""
+    end = float(np.max(time)) if len(time) else 1.0
+    if not len(extrema_time):
+        return end
+    alpha = estimate.neper_frequency.value
+    period = 2.0 * math.pi / estimate.angular_frequency.value
+    ring = float(extrema_time[-1]) + 3.0 * period
+    if alpha > 0 and estimate.noise_sigma > 0:
+        size = float(estimate.envelope_at(np.array([0.0]))[0])
+        if size > estimate.noise_sigma:
+            ring = max(ring, math.log(size / estimate.noise_sigma) / alpha * 1.2)
+    return min(end, ring)
 
 
 def _atomic_write(path: Path, writer: Callable[[Path], None]) -> None:
@@ -335,4 +489,3 @@ def _atomic_write(path: Path, writer: Callable[[Path], None]) -> None:
     finally:
         if temporary is not None and temporary.exists():
             temporary.unlink()
-

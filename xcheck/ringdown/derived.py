@@ -126,8 +126,14 @@ def derive_circuit(
     cov2 = np.asarray(estimate.covariance, dtype=float)[sub]
     crb2 = None if estimate.crb_covariance is None else np.asarray(estimate.crb_covariance)[sub]
     # Variables: alpha, omega_d, C, L (component variances independent of the trace).
-    x = np.array([estimate.neper_frequency.value, estimate.angular_frequency.value,
-                  capacitance or 1.0, inductance or 1.0])
+    x = np.array(
+        [
+            estimate.neper_frequency.value,
+            estimate.angular_frequency.value,
+            capacitance or 1.0,
+            inductance or 1.0,
+        ]
+    )
     cov = np.zeros((4, 4))
     cov[:2, :2] = cov2
     cov[2, 2] = capacitance_stderr**2

@@ -19,6 +19,7 @@ from scipy import stats
 from scipy.optimize import least_squares
 
 from xcheck.ringdown.result import EnvelopeDiagnostics
+from xcheck.values import format_eng
 
 #: Family-wise false-flag probability for the outlier test, and the two-sided level of
 #: the curvature test (common practice, no source).
@@ -79,7 +80,11 @@ def diagnose_envelope(
     n = len(t)
     known = sigmas is not None and not relative
     if n < (3 if known else 4) or np.any(amp <= 0):
-        rate = float(-np.polyfit(t, np.log(np.abs(amp)), 1)[0]) if n >= 2 and np.all(amp > 0) else math.nan
+        rate = (
+            float(-np.polyfit(t, np.log(np.abs(amp)), 1)[0])
+            if n >= 2 and np.all(amp > 0)
+            else math.nan
+        )
         return EnvelopeDiagnostics(
             exponential=True,
             flagged=[],
@@ -88,22 +93,35 @@ def diagnose_envelope(
             findings=[
                 f"only {n} usable extrema: too few to test whether the decay is one "
                 f"exponential ({3 if known else 4} or more are needed"
-                + ("" if known else " when the reading uncertainty is not stated") + ")"
+                + ("" if known else " when the reading uncertainty is not stated")
+                + ")"
             ],
             robust_neper_frequency=rate,
         )
     y = np.log(amp)
     tc = t - t.mean()
-    s_y = np.ones(n) if sigmas is None else np.maximum(np.asarray(sigmas, dtype=float) / amp, 1e-12)
     slope0, intercept0, _, _ = stats.theilslopes(y, tc)
+    # Errors on the log scale are sigma / amplitude. The amplitude is taken from the
+    # robust line, not from each noisy point: weights computed from the points
+    # themselves favour the ones noise pushed up and bend the fit at the quiet end.
+    smooth = np.exp(intercept0 + slope0 * tc)
+    s_y = (
+        np.ones(n)
+        if sigmas is None
+        else np.maximum(np.asarray(sigmas, dtype=float) / smooth, 1e-12)
+    )
     scale = 1.0 if known else max(_mad_scale((y - (intercept0 + slope0 * tc)) / s_y), 1e-9)
 
     def resid(p: np.ndarray) -> np.ndarray:
         return (y - (p[0] + p[1] * tc)) / (s_y * scale)
 
-    fit = least_squares(resid, [intercept0, slope0], loss="soft_l1", f_scale=1.0)
+    jac = -np.column_stack([np.ones(n), tc]) / (s_y * scale)[:, None]
+    fit = least_squares(resid, [intercept0, slope0], jac=lambda p: jac, loss="soft_l1", f_scale=1.0)
     if known:
-        z = resid(fit.x)
+        # Deviations measured on the amplitude scale, where the errors are Gaussian; on
+        # the log scale a low extremum near the noise would look more extreme than an
+        # equally high one.
+        z = (amp - np.exp(fit.x[0] + fit.x[1] * tc)) / np.asarray(sigmas, dtype=float)
         if n >= 6:
             z = z / max(1.0, _mad_scale(z))
         threshold = max(3.0, float(stats.norm.isf(FAMILY_LEVEL / (2 * n))))
@@ -116,6 +134,12 @@ def diagnose_envelope(
     curvature_t, curved = _curvature(tc[good], y[good], s_y[good], known)
     pattern = _pattern(flagged, z, n, curved, curvature_t)
     findings = _findings(pattern, flagged, z, n, curvature_t, threshold, kind)
+    if pattern != "none" and good.sum() >= 6:
+        early, late = _halves(t[good], y[good], s_y[good])
+        findings.append(
+            f"decay rate from the first half of the extrema {format_eng(early, '/s')}, "
+            f"from the second half {format_eng(late, '/s')}"
+        )
     exponential = pattern in ("none", "isolated")
     return EnvelopeDiagnostics(
         exponential=exponential,
@@ -126,6 +150,14 @@ def diagnose_envelope(
         robust_neper_frequency=float(-fit.x[1]),
         curvature_t=curvature_t,
     )
+
+
+def _halves(t: np.ndarray, y: np.ndarray, s: np.ndarray) -> tuple[float, float]:
+    """Decay rates (1/s) of weighted lines through the first and the second half."""
+    half = len(t) // 2
+    early = -np.polyfit(t[:half], y[:half], 1, w=1.0 / s[:half])[0]
+    late = -np.polyfit(t[half:], y[half:], 1, w=1.0 / s[half:])[0]
+    return float(early), float(late)
 
 
 def _deleted_residuals(x: np.ndarray, y: np.ndarray, s: np.ndarray) -> np.ndarray:
@@ -151,7 +183,9 @@ def _deleted_residuals(x: np.ndarray, y: np.ndarray, s: np.ndarray) -> np.ndarra
     return out
 
 
-def _curvature(tc: np.ndarray, y: np.ndarray, s_y: np.ndarray, known: bool) -> tuple[float | None, bool]:
+def _curvature(
+    tc: np.ndarray, y: np.ndarray, s_y: np.ndarray, known: bool
+) -> tuple[float | None, bool]:
     """t-statistic of the quadratic term of a weighted parabola through log-amplitudes."""
     m = len(tc)
     if m < (4 if known else 5):
@@ -178,7 +212,9 @@ def _end_run(flags: set[int], indices: range) -> list[int]:
     return run
 
 
-def _pattern(flagged: list[int], z: np.ndarray, n: int, curved: bool, curvature_t: float | None) -> str:
+def _pattern(
+    flagged: list[int], z: np.ndarray, n: int, curved: bool, curvature_t: float | None
+) -> str:
     flags = set(flagged)
     tail = _end_run(flags, range(n - 1, -1, -1))
     head = _end_run(flags, range(n))

@@ -6,7 +6,9 @@
    starting poles, and more than one mode when asked for.
 3. Nonlinear least squares of ``A exp(-alpha t) cos(omega_d t + phi) + offset`` on every
    usable sample (block means for very long records, with the exact block-mean
-   correction), standard errors ``s^2 (J^T J)^-1`` inflated by ``N / N_eff``.
+   correction). Standard errors from ``s^2 (J^T J)^-1``; when the residuals are
+   correlated (effective sample count ``N_eff = N / (1 + 2 sum rho_k)`` below N) from the
+   autocorrelation-consistent sandwich covariance, never below the white-noise ones.
 4. Cramér-Rao bound of the same model at the estimate, from ``J^T J / sigma^2`` over
    all usable samples (Kay 1993, vol. 1, eq. 3.31).
 5. Envelope diagnostics; when isolated extrema are flagged, the fit is repeated without
@@ -17,7 +19,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -29,6 +31,7 @@ from xcheck.ringdown.extrema import (
     find_extrema,
     log_decrement,
     noise_from_smoothing,
+    refine_with_model,
     rough_frequency,
     sample_step,
 )
@@ -59,8 +62,11 @@ from xcheck.values import format_eng
 MIN_PERIODS = 1.5
 #: Above this many usable samples the fit runs on block means.
 MAX_FIT_SAMPLES = 200_000
+#: Extrema enter the envelope test while the fitted envelope is this many times their
+#: standard deviation (twice the detection threshold).
+ENVELOPE_SNR = 10.0
 #: Samples handed to the matrix pencil at most (its SVD grows with the cube).
-PENCIL_SAMPLES = 300
+PENCIL_SAMPLES = 200
 
 
 @dataclass(frozen=True)
@@ -134,14 +140,18 @@ def estimate_ringdown(
     step = sample_step(t)
     uniform = bool(np.max(np.abs(np.diff(t) - step)) <= 1e-3 * step)
     if not uniform:
-        notes.append("sampling is not uniform: the pencil runs on an interpolated copy, no block averaging")
+        notes.append(
+            "sampling is not uniform: the pencil runs on an interpolated copy, no block averaging"
+        )
     t_in, v_in = t[keep], v[keep]
     filled = v if keep.all() else np.interp(t, t_in, v_in)
     freq0 = rough_frequency(t, filled)
     period0 = 1.0 / freq0
     given = noise_sigma is not None and noise_sigma > 0 and math.isfinite(noise_sigma)
     if noise_sigma is not None and not given:
-        notes.append(f"noise level {noise_sigma!r} is not a positive number; the residuals are used")
+        notes.append(
+            f"noise level {noise_sigma} V is not a positive number; the residuals are used"
+        )
     sigma0 = float(noise_sigma) if given else noise_from_smoothing(filled, period0 / step)
     if resolution:
         sigma0 = math.hypot(sigma0, resolution / math.sqrt(12.0))
@@ -165,29 +175,36 @@ def estimate_ringdown(
     for i in main.envelope.flagged:
         near |= np.abs(t - main.extrema_time[i]) < period / 4.0
     start = [(main.model_parameters[4 * m], main.model_parameters[4 * m + 1]) for m in range(modes)]
-    refit = _fit(t, v, keep & ~near, start, rates_ld, modes, noise, resolution, uniform, step, source)
+    refit = _fit(
+        t, v, keep & ~near, start, rates_ld, modes, noise, resolution, uniform, step, source
+    )
     cleaned = _assemble(
-        t, v, keep & ~near, refit,
+        t,
+        v,
+        keep & ~near,
+        refit,
         notes + [f"{int(near.sum())} samples around the flagged extrema left out"],
-        source_kind="trace", envelope=main.envelope, extrema=(main.extrema_time, main.extrema_value),
+        source_kind="trace",
+        envelope=main.envelope,
+        extrema=(main.extrema_time, main.extrema_value),
     )
     return _pair(main, cleaned)
 
 
 def _pair(with_all: RingdownEstimate, without: RingdownEstimate) -> RingdownEstimate:
     """Main estimate and alternate: without the flagged extrema when they are isolated."""
-    from dataclasses import replace
-
     if with_all.envelope.pattern == "isolated":
         return replace(
             without,
             excludes_flagged=True,
-            notes=without.notes + ("main estimate leaves the flagged extrema out; 'alternate' keeps them",),
+            notes=without.notes
+            + ("main estimate leaves the flagged extrema out; 'alternate' keeps them",),
             alternate=replace(with_all, alternate=None),
         )
     return replace(
         with_all,
-        notes=with_all.notes + ("flagged extrema kept (systematic pattern); 'alternate' leaves them out",),
+        notes=with_all.notes
+        + ("flagged extrema kept (systematic pattern); 'alternate' leaves them out",),
         alternate=replace(without, alternate=None, excludes_flagged=True),
     )
 
@@ -200,27 +217,48 @@ def _validated(
     v = np.asarray(voltage, dtype=float)
     problems: list[str] = []
     if t.ndim != 1 or v.ndim != 1 or t.shape != v.shape:
-        raise TraceError(source, [f"time and voltage must be 1-D arrays of one length, got shapes {t.shape} and {v.shape}"])
+        raise TraceError(
+            source,
+            [
+                "time and voltage must be 1-D arrays of one length, got shapes "
+                f"{t.shape} and {v.shape}"
+            ],
+        )
     keep = np.ones(len(t), dtype=bool)
     if exclude is not None:
         ex = np.asarray(exclude, dtype=bool)
         if ex.shape != t.shape:
-            problems.append(f"the exclusion mask has shape {ex.shape}, the trace {t.shape}; pass one flag per sample")
+            problems.append(
+                f"the exclusion mask has shape {ex.shape}, the trace {t.shape}; "
+                "pass one flag per sample"
+            )
         else:
             keep = ~ex
     bad_t = ~np.isfinite(t)
     if bad_t.any():
-        problems.append(f"{int(bad_t.sum())} time values are not finite (first at sample {int(np.argmax(bad_t))}); remove or repair them")
+        problems.append(
+            f"{int(bad_t.sum())} time values are not finite (first at sample "
+            f"{int(np.argmax(bad_t))}); remove or repair them"
+        )
     bad_v = ~np.isfinite(v) & keep
     if bad_v.any():
-        problems.append(f"{int(bad_v.sum())} voltage values are not finite (first at sample {int(np.argmax(bad_v))}); remove them or mark them excluded")
+        problems.append(
+            f"{int(bad_v.sum())} voltage values are not finite (first at sample "
+            f"{int(np.argmax(bad_v))}); remove them or mark them excluded"
+        )
     if len(t) > 1 and not bad_t.any():
         d = np.diff(t)
         if np.any(d <= 0):
             i = int(np.argmax(d <= 0))
-            problems.append(f"time does not increase at sample {i + 1} ({t[i]!r} then {t[i + 1]!r}); times must be strictly increasing")
+            problems.append(
+                f"time does not increase at sample {i + 1} ({float(t[i]):.9g} then "
+                f"{float(t[i + 1]):.9g}); times must be strictly increasing"
+            )
     if int(keep.sum()) < 16:
-        problems.append(f"only {int(keep.sum())} usable samples; a ring-down estimate needs at least 16 (and 1.5 periods of ringing)")
+        problems.append(
+            f"only {int(keep.sum())} usable samples; a ring-down estimate needs at least 16 "
+            "(and 1.5 periods of ringing)"
+        )
     if problems:
         raise TraceError(source, problems)
     return t, v, keep
@@ -316,11 +354,15 @@ def _fit(
     n_in = int(keep.sum())
     block = 1
     if uniform and n_in > MAX_FIT_SAMPLES:
-        per_period = 2.0 * math.pi / max(r[1] for r in (rates_mp or rates_ld or [(0.0, 1.0 / step)])) / step
+        per_period = (
+            2.0 * math.pi / max(r[1] for r in (rates_mp or rates_ld or [(0.0, 1.0 / step)])) / step
+        )
         block = max(1, min(math.ceil(n_in / MAX_FIT_SAMPLES), int(per_period // 20)))
     if block > 1:
         tf, vf = block_means(ts, v, keep, block)
-        notes.append(f"fitted on means of {block} samples (exact block-mean model correction applied)")
+        notes.append(
+            f"fitted on means of {block} samples (exact block-mean model correction applied)"
+        )
     else:
         tf, vf = ts[keep], v[keep]
     best = None
@@ -334,7 +376,10 @@ def _fit(
         if trial.success and plausible:
             break
     if best is None:
-        raise TraceError(source, ["no starting values could be found for the fit; the record may hold no ringing"])
+        raise TraceError(
+            source,
+            ["no starting values could be found for the fit; the record may hold no ringing"],
+        )
     fit, plausible = best
     theta_fit = _sorted_modes(fit.theta)
     jac_fit = _reordered_jacobian(fit.jacobian, fit.theta, theta_fit)
@@ -405,11 +450,15 @@ def _at_least(cov: np.ndarray, floor: np.ndarray) -> np.ndarray:
     of the same per-sample level would (a conservative choice, common practice).
     """
     d_cov, d_floor = np.diag(cov), np.diag(floor)
-    scale = np.sqrt(np.where(d_cov > 0, np.maximum(d_floor / np.where(d_cov > 0, d_cov, 1.0), 1.0), 1.0))
+    scale = np.sqrt(
+        np.where(d_cov > 0, np.maximum(d_floor / np.where(d_cov > 0, d_cov, 1.0), 1.0), 1.0)
+    )
     return cov * np.outer(scale, scale)
 
 
-def _padded(rates: list[tuple[float, float]] | None, modes: int) -> list[tuple[float, float]] | None:
+def _padded(
+    rates: list[tuple[float, float]] | None, modes: int
+) -> list[tuple[float, float]] | None:
     """Log-decrement start for ``modes`` modes: extra modes start at multiples of it."""
     if rates is None:
         return None
@@ -429,13 +478,19 @@ def _reordered_jacobian(jac: np.ndarray, before: np.ndarray, after: np.ndarray) 
     modes = mode_count(before)
     order = []
     for m in range(modes):
-        match = next(k for k in range(modes) if np.array_equal(before[4 * k : 4 * k + 4], after[4 * m : 4 * m + 4]))
+        match = next(
+            k
+            for k in range(modes)
+            if np.array_equal(before[4 * k : 4 * k + 4], after[4 * m : 4 * m + 4])
+        )
         order += list(range(4 * match, 4 * match + 4))
     order.append(len(before) - 1)
     return jac[:, order]
 
 
-def _jacobian_of(func: Callable[[np.ndarray], np.ndarray], x: np.ndarray, cov: np.ndarray) -> np.ndarray:
+def _jacobian_of(
+    func: Callable[[np.ndarray], np.ndarray], x: np.ndarray, cov: np.ndarray
+) -> np.ndarray:
     """Central-difference Jacobian of a vector function (rows: outputs)."""
     return np.array([gradient(lambda p, i=i: float(func(p)[i]), x, cov) for i in range(len(x))])
 
@@ -488,7 +543,9 @@ def _assemble(
     alpha, omega = values[0], values[1]
     offset = values[4]
     two_pi = 2.0 * math.pi
-    freq = Estimate(omega / two_pi, math.sqrt(cov_q[1, 1]) / two_pi, math.sqrt(crb_q[1, 1]) / two_pi)
+    freq = Estimate(
+        omega / two_pi, math.sqrt(cov_q[1, 1]) / two_pi, math.sqrt(crb_q[1, 1]) / two_pi
+    )
     extra = []
     for m in range(1, mode_count(fit.theta)):
         base = 6 + 4 * (m - 1)
@@ -497,7 +554,9 @@ def _assemble(
             ModeEstimate(
                 neper_frequency=e[0],
                 angular_frequency=e[1],
-                damped_frequency=Estimate(e[1].value / two_pi, e[1].stderr / two_pi, (e[1].crb or 0.0) / two_pi),
+                damped_frequency=Estimate(
+                    e[1].value / two_pi, e[1].stderr / two_pi, (e[1].crb or 0.0) / two_pi
+                ),
                 amplitude=e[2],
                 phase=Estimate(wrap_phase(e[3].value), e[3].stderr, e[3].crb),
             )
@@ -505,17 +564,36 @@ def _assemble(
     theta_abs = np.array(fit.theta, dtype=float)
     for m in range(mode_count(fit.theta)):
         a_m, b_m = theta_abs[4 * m + 2 : 4 * m + 4]
-        z = complex(a_m, -b_m) * np.exp(-complex(-theta_abs[4 * m], theta_abs[4 * m + 1]) * fit.t_ref)
+        z = complex(a_m, -b_m) * np.exp(
+            -complex(-theta_abs[4 * m], theta_abs[4 * m + 1]) * fit.t_ref
+        )
         theta_abs[4 * m + 2], theta_abs[4 * m + 3] = z.real, -z.imag
     if extrema is None:
         inflation = math.sqrt(max(fit.n_used / fit.n_eff, 1.0))
-        ext = find_extrema(
+        located = find_extrema(
             t, v, period=two_pi / omega, offset=offset, noise_sigma=fit.sigma * inflation, keep=keep
         )
-        ext_time, ext_value = ext.time, ext.value
+        ext = refine_with_model(
+            t,
+            v,
+            located,
+            alpha=alpha,
+            omega=omega,
+            offset=offset,
+            noise_sigma=fit.sigma * inflation,
+            keep=keep,
+        )
+        # Only extrema the fitted envelope puts well clear of the noise: near the floor
+        # the ones that were found are those noise pushed up (selection bias), which
+        # would fake a slowing decay. The cut uses the smooth model, not the points.
+        envelope_model = values[2] * omega / math.hypot(alpha, omega) * np.exp(-alpha * ext.time)
+        clear = envelope_model >= ENVELOPE_SNR * ext.sigma
+        if len(clear) and not clear.all():
+            clear[np.argmin(clear) :] = False
+        ext_time, ext_value = ext.time[clear], ext.value[clear]
         if envelope is None:
             envelope = diagnose_envelope(
-                ext.time, ext.sign * (ext.value - offset), ext.sigma * inflation, kind=source_kind
+                ext_time, ext.sign[clear] * (ext_value - offset), ext.sigma[clear], kind=source_kind
             )
     else:
         ext_time, ext_value = extrema

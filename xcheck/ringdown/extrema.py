@@ -78,7 +78,9 @@ def rough_frequency(time: np.ndarray, voltage: np.ndarray) -> float:
         step *= block
     nfft = 1 << max(12, (8 * len(v) - 1).bit_length())
     nfft = min(nfft, 1 << 22)
-    freqs, power = periodogram(v, fs=1.0 / step, nfft=nfft, detrend=False, window="hann")
+    # Rectangular window: a ring-down is strongest at the very start, where a tapered
+    # window would suppress it.
+    freqs, power = periodogram(v, fs=1.0 / step, nfft=nfft, detrend=False, window="boxcar")
     span = step * len(v)
     usable = freqs >= 1.0 / span
     if not usable.any():
@@ -103,7 +105,7 @@ def find_extrema(
     time, voltage
         The trace (s, V), uniformly sampled.
     period
-        Approximate oscillation period (s); peaks closer than 0.6 period are merged.
+        Approximate oscillation period (s); peaks closer than 0.7 period are merged.
     offset
         Level the trace rings around (V).
     noise_sigma
@@ -126,35 +128,51 @@ def find_extrema(
     step = sample_step(t)
     per_period = max(period / step, 2.0)
     half = max(1, int(round(per_period / 8.0)))
-    distance = max(1, int(0.6 * per_period))
+    distance = max(1, int(0.7 * per_period))
     y = np.where(ok, v - offset, 0.0)
     floor = min_snr * noise_sigma / math.sqrt(2 * half + 1)
     candidates: list[tuple[int, int]] = []
     for sign in (1, -1):
         peaks, _ = find_peaks(sign * y, distance=distance)
-        # Samples far inside the noise cannot become significant extrema: skip early.
-        candidates += [(int(i), sign) for i in peaks[sign * y[peaks] > 0.5 * floor]]
+        candidates += [(int(i), sign) for i in peaks]
     candidates.sort()
     uniform = bool(np.max(np.abs(np.diff(t) - step)) <= 1e-3 * step) if len(t) > 1 else True
+    design = np.vander(np.arange(-half, half + 1, dtype=float), 3)
+    unscaled = np.linalg.inv(design.T @ design)
     kept: list[tuple[float, float, float, int]] = []
     for index, sign in candidates:
-        refined = _refine(t, v, ok, index, half, sign, noise_sigma, step, uniform)
-        if refined is None:
-            continue
-        item = (*refined, sign)
+        if sign * y[index] > 0.5 * floor:  # else far inside the noise: no need to refine
+            refined = _refine(
+                t,
+                v,
+                ok,
+                index,
+                half,
+                sign,
+                noise_sigma,
+                step,
+                (design, unscaled) if uniform else None,
+            )
+            if refined is None:
+                continue  # window clipped, off the record, or not an extremum after all
+            item = (*refined, sign)
+        else:
+            item = (float(t[index]), float(v[index]), float(noise_sigma), sign)
         # Two maxima (or minima) in a row closer than 3/4 period are one extremum seen
         # twice; further apart, the extremum between them was skipped (e.g. clipped).
         if kept and kept[-1][3] == sign and item[0] - kept[-1][0] < 0.75 * period:
             if sign * (item[1] - offset) > sign * (kept[-1][1] - offset):
                 kept[-1] = item
             continue
+        if kept and item[0] <= kept[-1][0] + 0.25 * period:
+            continue  # not after the previous extremum by a sensible part of a period
         size = sign * (item[1] - offset)
+        if size <= 0:
+            continue  # a bump on the wrong side of the offset (noise in a trough): not an extremum
         if size < min_snr * max(item[2], floor / min_snr):
             if not kept:
                 continue  # noise bumps before the first clear extremum (e.g. on the first edge)
-            break
-        if kept and item[0] - kept[-1][0] > 0.75 * period and ok[(t > kept[-1][0]) & (t < item[0])].all():
-            break  # an extremum is missing without excluded samples to explain it: noise
+            break  # the ringing has sunk into the noise
         kept.append(item)
     arr = np.array(kept, dtype=float).reshape(-1, 4)
     return Extrema(arr[:, 0], arr[:, 1], arr[:, 2], arr[:, 3].astype(int))
@@ -169,43 +187,101 @@ def _refine(
     sign: int,
     sigma: float,
     step: float,
-    uniform: bool,
+    shared: tuple[np.ndarray, np.ndarray] | None,
 ) -> tuple[float, float, float] | None:
     """Vertex of the least-squares parabola through the samples around one peak.
 
     Least squares over the ``2 half + 1`` samples centred on the peak (positions in
     units of the sample step). When the vertex falls outside the window (noise moved
     the highest sample off the true extremum) the window is moved to the vertex and the
-    fit repeated, twice at most; if it still fails, the peak sample itself is kept with
-    the noise of one sample. None when the window holds an excluded sample or runs off
-    the record. Returns (time, value, standard deviation of the value).
+    fit repeated, twice at most and never more than ``half`` samples away from the peak.
+    None when that fails, when the parabola opens the wrong
+    way (not an extremum), or when the window holds an excluded sample or runs off the
+    record. ``shared`` holds the design matrix and ``(X^T X)^-1`` of a uniform window
+    (None for non-uniform sampling). Returns (time, value, standard deviation of the
+    value).
     """
-    offsets = np.arange(-half, half + 1, dtype=float)
-    design = np.vander(offsets, 3)
-    unscaled = np.linalg.inv(design.T @ design)
     centre = peak
     for _ in range(3):
         lo, hi = centre - half, centre + half + 1
         if lo < 0 or hi > len(t) or not ok[lo:hi].all():
             break
-        if uniform:
-            c2, c1, c0 = unscaled @ (design.T @ v[lo:hi])
-            cov = unscaled
+        if shared is not None:
+            design, cov = shared
+            c2, c1, c0 = cov @ (design.T @ v[lo:hi])
         else:
-            (c2, c1, c0), cov = np.polyfit((t[lo:hi] - t[centre]) / step, v[lo:hi], 2, cov="unscaled")
+            (c2, c1, c0), cov = np.polyfit(
+                (t[lo:hi] - t[centre]) / step, v[lo:hi], 2, cov="unscaled"
+            )
         if sign * c2 >= 0:
             break
         vertex = -c1 / (2.0 * c2)
         if abs(vertex) <= half:
-            value = c0 - c1 * c1 / (4.0 * c2)
+            # c0 - c1^2 / (4 c2), with the noise's share of c1^2 (its variance) taken
+            # out: otherwise small extrema in noise come out systematically too large.
+            var_c1 = float(cov[1, 1]) * sigma**2
+            value = c0 - (c1 * c1 - var_c1) / (4.0 * c2)
             grad = np.array([c1 * c1 / (4.0 * c2 * c2), -c1 / (2.0 * c2), 1.0])
             var = float(grad @ cov @ grad) * sigma**2
             return float(t[centre] + vertex * step), float(value), math.sqrt(max(var, 0.0))
         centre += int(round(vertex))
-    lo, hi = peak - half, peak + half + 1
-    if lo < 0 or hi > len(t) or not ok[lo:hi].all():
-        return None
-    return float(t[peak]), float(v[peak]), float(sigma)
+        if abs(centre - peak) > half:
+            break  # wandering off towards another extremum: not this one
+    return None
+
+
+def refine_with_model(
+    time: np.ndarray,
+    voltage: np.ndarray,
+    found: Extrema,
+    *,
+    alpha: float,
+    omega: float,
+    offset: float,
+    noise_sigma: float,
+    keep: np.ndarray | None = None,
+) -> Extrema:
+    """Extrema re-measured with the fitted ring-down's own shape instead of a parabola.
+
+    Around each extremum (half a period, centred on it) the samples are fitted by linear
+    least squares with ``offset + exp(-alpha (t - t_k)) (p cos(omega (t - t_k)) +
+    q sin(omega (t - t_k)))``, alpha and omega fixed at the global fit: only the local
+    amplitude and phase are free, so a glitch or a changed decay still shows, while the
+    parabola's shape error (which depends on where the samples fall, up to ~1 % at
+    12 samples per period) is gone. The extremum of that local curve is where
+    ``tan(omega (t - t_k) + phi) = -alpha / omega``; its magnitude is
+    ``A (omega / omega0) exp(-alpha (t - t_k))``. Extrema whose window holds an excluded
+    sample or runs off the record are dropped.
+    """
+    t = np.asarray(time, dtype=float)
+    v = np.asarray(voltage, dtype=float)
+    ok = np.ones(len(t), dtype=bool) if keep is None else np.asarray(keep, dtype=bool)
+    quarter = 0.25 * 2.0 * math.pi / omega
+    ratio = omega / math.hypot(alpha, omega)
+    rows = []
+    for tk, sign in zip(found.time, found.sign):
+        lo, hi = np.searchsorted(t, tk - quarter), np.searchsorted(t, tk + quarter, side="right")
+        if lo == 0 or hi >= len(t) or hi - lo < 4 or not ok[lo:hi].all():
+            continue
+        x = t[lo:hi] - tk
+        decay = np.exp(-alpha * x)
+        basis = np.column_stack([decay * np.cos(omega * x), decay * np.sin(omega * x)])
+        coef, *_ = np.linalg.lstsq(basis, v[lo:hi] - offset, rcond=None)
+        p, q = coef
+        amp = math.hypot(p, q)
+        phi = math.atan2(-q, p)
+        # Extremum of A exp(-alpha x) cos(omega x + phi) nearest to x = 0.
+        base = -math.atan2(alpha, omega) - phi
+        shift = base + math.pi * round(-base / math.pi)
+        x_star = shift / omega
+        value = sign * amp * ratio * math.exp(-alpha * x_star)
+        # Delta method for the value: d|value|/d(p, q) with x_star treated as fixed
+        # (it is a stationary point, so its own error enters only at second order).
+        cov = np.linalg.inv(basis.T @ basis) * noise_sigma**2
+        grad = np.array([p, q]) / max(amp, 1e-300) * ratio * math.exp(-alpha * x_star)
+        rows.append((tk + x_star, offset + value, math.sqrt(float(grad @ cov @ grad)), sign))
+    arr = np.array(rows, dtype=float).reshape(-1, 4)
+    return Extrema(arr[:, 0], arr[:, 1], arr[:, 2], arr[:, 3].astype(int))
 
 
 def log_decrement(times: np.ndarray, amplitudes: np.ndarray) -> tuple[float, float]:

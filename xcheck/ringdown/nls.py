@@ -9,8 +9,9 @@ The cosine/sine amplitudes (rather than amplitude and phase) keep the problem we
 conditioned; ``A = hypot(a, b)`` and ``phi = atan2(-b, a)`` give the usual
 ``A exp(-alpha t) cos(omega t + phi)`` form. The refinement is
 :func:`scipy.optimize.least_squares` with the analytic Jacobian; standard errors come from
-``s^2 (J^T J)^-1`` (ordinary least-squares asymptotics), inflated by ``N / N_eff`` when
-the residuals are correlated.
+``s^2 (J^T J)^-1`` (ordinary least-squares asymptotics); with correlated residuals the
+sandwich covariance (:func:`sandwich_covariance`) uses their autocorrelation up to the
+lag where it has died out (:func:`residual_correlation`, which also gives ``N_eff``).
 """
 
 from __future__ import annotations
@@ -55,7 +56,9 @@ def damped_jacobian(time: np.ndarray, theta: np.ndarray) -> np.ndarray:
     return jac
 
 
-def linear_amplitudes(time: np.ndarray, voltage: np.ndarray, rates: list[tuple[float, float]]) -> np.ndarray:
+def linear_amplitudes(
+    time: np.ndarray, voltage: np.ndarray, rates: list[tuple[float, float]]
+) -> np.ndarray:
     """Best cosine/sine amplitudes and offset for fixed (alpha, omega) pairs.
 
     Ordinary linear least squares (numpy.linalg.lstsq); returns a full parameter vector.

@@ -91,11 +91,22 @@ def estimate_from_peaks(
     n = len(t)
     if fit_offset is None:
         fit_offset = n >= (4 if alternating else 5)
+    if alternating and not fit_offset and (np.all(v > 0) or np.all(v < 0)):
+        raise TraceError(
+            source,
+            [
+                f"the {n} readings alternate about a level away from 0 V "
+                f"({float(np.min(v)):.6g} V to {float(np.max(v)):.6g} V); fitting that level "
+                "as well needs at least 4 readings: read further extrema off the trace"
+            ],
+        )
     notes: list[str] = []
     if not fit_offset:
         notes.append(f"offset held at 0 V ({n} readings are too few to fit it as well)")
     if not alternating:
-        notes.append("readings do not alternate: taken as one extremum per period (maxima or minima only)")
+        notes.append(
+            "readings do not alternate: taken as one extremum per period (maxima or minima only)"
+        )
     start = _start(t, v, k, fit_offset)
     diag_offset = _robust_offset(t, v, u, k, start, fit_offset)
     sign = np.sign(start[3]) * np.where(k % 2 == 0, 1.0, -1.0)
@@ -112,19 +123,30 @@ def estimate_from_peaks(
     kept = every.copy()
     kept[envelope.flagged] = False
     cleaned = _estimate(
-        t, v, u, k, kept, start, fit_offset and int(kept.sum()) >= (4 if alternating else 5),
-        alternating, notes + [f"readings {envelope.flagged} left out"], envelope, source,
+        t,
+        v,
+        u,
+        k,
+        kept,
+        start,
+        fit_offset and int(kept.sum()) >= (4 if alternating else 5),
+        alternating,
+        notes + [f"readings {envelope.flagged} left out"],
+        envelope,
+        source,
     )
     if envelope.pattern == "isolated":
         return replace(
             cleaned,
             excludes_flagged=True,
-            notes=cleaned.notes + ("main estimate leaves the flagged readings out; 'alternate' keeps them",),
+            notes=cleaned.notes
+            + ("main estimate leaves the flagged readings out; 'alternate' keeps them",),
             alternate=main,
         )
     return replace(
         main,
-        notes=main.notes + ("flagged readings kept (systematic pattern); 'alternate' leaves them out",),
+        notes=main.notes
+        + ("flagged readings kept (systematic pattern); 'alternate' leaves them out",),
         alternate=replace(cleaned, excludes_flagged=True),
     )
 
@@ -149,7 +171,8 @@ def _validated(
     if len(t) > 1 and np.all(np.isfinite(t)) and np.any(np.diff(t) <= 0):
         i = int(np.argmax(np.diff(t) <= 0))
         problems.append(
-            f"time does not increase from row {i + 1} to row {i + 2} ({t[i]!r}, {t[i + 1]!r}); "
+            f"time does not increase from row {i + 1} to row {i + 2} "
+            f"({float(t[i]):.9g}, {float(t[i + 1]):.9g}); "
             "list the extrema in time order, each once"
         )
     u = None
@@ -159,7 +182,9 @@ def _validated(
             problems.append(f"{len(u)} uncertainties for {len(t)} readings; give one per reading")
         elif np.any(~np.isfinite(u) | (u <= 0)):
             i = int(np.argmax(~np.isfinite(u) | (u <= 0)))
-            problems.append(f"uncertainty in row {i + 1} is {u[i]!r}; it must be a positive number")
+            problems.append(
+                f"uncertainty in row {i + 1} is {float(u[i]):g}; it must be a positive number"
+            )
     if problems:
         raise TraceError(source, problems)
     return t, v, u
@@ -177,8 +202,9 @@ def _lattice(t: np.ndarray, v: np.ndarray, source: str) -> tuple[np.ndarray, boo
         raise TraceError(
             source,
             [
-                f"rows {i + 1} and {i + 2} are {d[i]!r} s apart, {ratio[i]:.2f} times the usual "
-                f"spacing {ref!r} s; extrema of one ring-down are whole half periods apart: "
+                f"rows {i + 1} and {i + 2} are {float(d[i]):.6g} s apart, {ratio[i]:.2f} times "
+                "the usual "
+                f"spacing {ref:.6g} s; extrema of one ring-down are whole half periods apart: "
                 "check for a missing, extra or misplaced row"
             ],
         )
@@ -228,12 +254,19 @@ def _values_model(p: np.ndarray, k: np.ndarray, t_first: float) -> np.ndarray:
 
 
 def _robust_offset(
-    t: np.ndarray, v: np.ndarray, u: np.ndarray | None, k: np.ndarray, start: np.ndarray, fit_offset: bool
+    t: np.ndarray,
+    v: np.ndarray,
+    u: np.ndarray | None,
+    k: np.ndarray,
+    start: np.ndarray,
+    fit_offset: bool,
 ) -> float:
     """Offset of a soft-L1 fit of the values (not dragged by one bad reading)."""
     if not fit_offset:
         return 0.0
-    scale = u if u is not None else np.full(len(v), max(1e-3 * np.max(np.abs(v - start[4])), 1e-300))
+    scale = (
+        u if u is not None else np.full(len(v), max(1e-3 * np.max(np.abs(v - start[4])), 1e-300))
+    )
 
     def resid(q: np.ndarray) -> np.ndarray:
         return (v - _values_model(np.array([start[0], start[1], *q]), k, t[0])) / scale
@@ -292,7 +325,9 @@ def _estimate(
         r_v = (vv - _values_model(full, kk, t[0])) / s_v
         return np.concatenate([r_t, r_v])
 
-    fit = least_squares(joint, p[free], x_scale="jac", method="lm", xtol=1e-14, ftol=1e-14, gtol=1e-14)
+    fit = least_squares(
+        joint, p[free], x_scale="jac", method="lm", xtol=1e-14, ftol=1e-14, gtol=1e-14
+    )
     r_v = fit.fun[n:]
     factor_v = 1.0
     residual_based_v = uu is None
@@ -325,7 +360,8 @@ def _estimate(
         raise TraceError(
             source,
             [
-                f"the first extremum is at {t0!r} s, {alpha * t0:.0f} decay times after t = 0; "
+                f"the first extremum is at {float(t0):.6g} s, {alpha * t0:.0f} decay times "
+                "after t = 0; "
                 "the amplitude at t = 0 cannot be extrapolated that far: give times relative "
                 "to the event or to the first extremum"
             ],
@@ -357,8 +393,10 @@ def _estimate(
         extrema_value=v.copy(),
         noise_sigma=float(np.median(s_v) * factor_v),
         noise_source=(
-            "scatter of the readings about the fit" if uu is None
-            else "stated reading uncertainties" + (" (scaled by the Birge ratio)" if factor_v > 1 else "")
+            "scatter of the readings about the fit"
+            if uu is None
+            else "stated reading uncertainties"
+            + (" (scaled by the Birge ratio)" if factor_v > 1 else "")
         ),
         samples_used=n,
         samples_excluded=int(len(t) - n),
@@ -387,8 +425,11 @@ def _quantities(p: np.ndarray, t_first: float) -> list[Callable[[np.ndarray], fl
         t0, h, alpha, b, _ = q
         omega = math.pi / h
         b0 = b * math.exp(-alpha * (t0 - t_first))
-        return b0 * math.exp(alpha * t0) * complex(1.0, -alpha / omega) * complex(
-            math.cos(omega * t0), -math.sin(omega * t0)
+        return (
+            b0
+            * math.exp(alpha * t0)
+            * complex(1.0, -alpha / omega)
+            * complex(math.cos(omega * t0), -math.sin(omega * t0))
         )
 
     hat = phasor(p)

@@ -38,7 +38,9 @@ class PencilResult:
     singular_values: np.ndarray
 
 
-def matrix_pencil(samples: np.ndarray, step: float, order: int, pencil: int | None = None) -> PencilResult:
+def matrix_pencil(
+    samples: np.ndarray, step: float, order: int, pencil: int | None = None
+) -> PencilResult:
     """Poles of ``order`` damped exponentials in uniformly spaced samples.
 
     Parameters

@@ -43,6 +43,12 @@ class Estimate:
     stderr: float
     crb: float | None = None
 
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "value", float(self.value))
+        object.__setattr__(self, "stderr", float(self.stderr))
+        if self.crb is not None:
+            object.__setattr__(self, "crb", float(self.crb))
+
     def to_json(self) -> dict[str, float | None]:
         """``{"value": ..., "stderr": ..., "crb": ...}`` with plain floats."""
         return {
