@@ -15,7 +15,7 @@ from xcheck.candidates import (
     series_resistance,
 )
 from xcheck.errors import FixtureError
-from xcheck.fixture import parse_fixture_text
+from xcheck.fixture_reader import parse_fixture_text
 
 BASE = '''\
 title = "ladder check (invented example)"

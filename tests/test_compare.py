@@ -23,7 +23,7 @@ from compare_cases import (
     write_trace,
 )
 from xcheck.compare import run_comparison
-from xcheck.fixture import load_fixture
+from xcheck.fixture_reader import load_fixture
 from xcheck.report import summary, write_report
 
 

@@ -23,6 +23,9 @@ A fixture may add candidates of its own and drop defaults in a ``[candidates]`` 
     description = "All unexplained loss is capacitor ESR"
     [candidates.esr-only.set]    # optional fixed values
     "L1.dcr" = "0.12"
+
+A measured value listed in ``free`` is held within three standard uncertainties of its
+reading unless the candidate also lists it in ``release``.
 """
 
 from __future__ import annotations

@@ -115,7 +115,7 @@ class Measured:
     def envelope(self) -> Envelope:
         """Extrema magnitudes about the fitted offset, for the envelope figure."""
         est = self.estimate
-        offset = est.offset.value if self.kind == "trace" else 0.0
+        offset = est.offset.value
         return Envelope(np.asarray(est.extrema_time, float),
                         np.asarray(est.extrema_value, float) - offset,
                         list(est.flagged_extrema), est.neper_frequency.value,

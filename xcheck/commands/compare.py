@@ -9,7 +9,7 @@ from pathlib import Path
 
 from xcheck.compare import Comparison, run_comparison
 from xcheck.errors import XcheckError
-from xcheck.fixture import load_fixture
+from xcheck.fixture_reader import load_fixture
 from xcheck.report import write_report
 from xcheck.values import parse_value
 

@@ -17,7 +17,7 @@ from pathlib import Path
 from xcheck.circuit import build_circuit
 from xcheck.deck import is_xcheck_deck, write_deck
 from xcheck.errors import XcheckError
-from xcheck.fixture import load_fixture
+from xcheck.fixture_reader import load_fixture
 from xcheck.parameters import parameters_from_fixture
 from xcheck.values import format_eng
 

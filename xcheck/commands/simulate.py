@@ -30,7 +30,8 @@ from xcheck.circuit import Circuit, build_circuit
 from xcheck.engines.ngspice import simulate_ngspice
 from xcheck.engines.theory import SecondOrder, TheoryNotApplicable, characterise, simulate_theory
 from xcheck.errors import XcheckError
-from xcheck.fixture import Fixture, load_fixture
+from xcheck.fixture import Fixture
+from xcheck.fixture_reader import load_fixture
 from xcheck.parameters import parameters_from_fixture
 from xcheck.values import format_eng
 from xcheck.waveform import Waveform
