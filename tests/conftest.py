@@ -64,3 +64,34 @@ def write_toml(tmp_path: Path) -> Callable[[str, str], Path]:
         return path
 
     return write
+
+
+def ngspice_available() -> bool:
+    """True when ngspice's shared library can be loaded the way PySpice loads it."""
+    import ctypes
+    import os
+
+    path = os.environ.get("NGSPICE_LIBRARY_PATH") or "libngspice.so"
+    try:
+        ctypes.CDLL(path)
+    except OSError:
+        return False
+    return True
+
+
+def pytest_configure(config: pytest.Config) -> None:
+    config.addinivalue_line("markers", "ngspice: needs ngspice's shared library (libngspice)")
+
+
+def pytest_collection_modifyitems(config: pytest.Config, items: list[pytest.Item]) -> None:
+    """Skip tests marked ``ngspice`` when the library is missing, saying what to install."""
+    if ngspice_available():
+        return
+    skip = pytest.mark.skip(
+        reason="ngspice's shared library is not installed: apt-get install libngspice0-dev "
+        "(Debian/Ubuntu), brew install libngspice, conda install -c conda-forge ngspice-lib, "
+        "or set NGSPICE_LIBRARY_PATH"
+    )
+    for item in items:
+        if "ngspice" in item.keywords:
+            item.add_marker(skip)

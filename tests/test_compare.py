@@ -61,6 +61,7 @@ def test_peak_table_of_the_same_event_gives_the_same_verdict(tmp_path, lossy_fix
     assert result.outcome("as-measured").ranked.delta_bic > 10
 
 
+@pytest.mark.ngspice
 def test_ngspice_agrees_with_the_fast_engine_on_fitted_candidates(tmp_path, lossy_fixture):
     result = run_comparison(lossy_fixture, trace=write_trace(tmp_path, 11), use_ngspice=True)
     for outcome in result.outcomes:

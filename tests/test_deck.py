@@ -212,6 +212,7 @@ def test_hostile_strings_cannot_add_lines(tmp_path: Path) -> None:
     assert names.probe[1] == "0" and names.probe[0] != "0"
 
 
+@pytest.mark.ngspice
 def test_ngspice_does_not_run_what_a_hostile_fixture_wrote(tmp_path: Path) -> None:
     marker = tmp_path / "pwned"
     safe = tmp_path / "safe.cir"
@@ -314,6 +315,7 @@ def test_golden_deck_matches(name: str) -> None:
     )
 
 
+@pytest.mark.ngspice
 def test_golden_decks_load_and_run_in_ngspice(tmp_path: Path) -> None:
     tasks = [
         {"deck": str(ROOT / "netlists" / f"{name}.cir"), "out": str(tmp_path / f"{name}.npz")}
@@ -347,6 +349,7 @@ def test_golden_decks_load_and_run_in_ngspice(tmp_path: Path) -> None:
         assert np.all(np.isfinite(probe)) and f"{circuit.current_sense.lower()}#branch" in data
 
 
+@pytest.mark.ngspice
 def test_deck_wiring_matches_circuit_theory(tmp_path: Path) -> None:
     """Series RLC natural response and an RC step through a leaky capacitor, run by
     ngspice from decks written here, against the textbook formulas (Nilsson & Riedel,

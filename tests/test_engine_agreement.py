@@ -23,6 +23,8 @@ from xcheck.circuit import Circuit, Element
 from xcheck.engines.ngspice import simulate_ngspice
 from xcheck.engines.theory import characterise, simulate_theory
 
+pytestmark = pytest.mark.ngspice  # skipped, with the install hint, without libngspice
+
 L_, C_ = 1e-3, 1e-6
 Z0 = math.sqrt(L_ / C_)
 V0, STEP = 10.0, 12.0

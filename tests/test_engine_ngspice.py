@@ -33,6 +33,8 @@ from xcheck.engines.ngspice import (
 )
 from xcheck.errors import SimulationError
 
+pytestmark = pytest.mark.ngspice  # skipped, with the install hint, without libngspice
+
 RC_DECK = """* rc discharge, hand written
 V_sense 0 n1 dc 0
 C_1 n1 n2 {c} ic=5

@@ -16,6 +16,8 @@ import pytest
 from xcheck.cli import main
 from xcheck.values import format_eng
 
+pytestmark = pytest.mark.ngspice  # skipped, with the install hint, without libngspice
+
 RING_DOWN = '''\
 title = "Bench ring-down for the simulate test (invented example)"
 response = "natural"
