@@ -167,7 +167,7 @@ def estimate_ringdown(
         notes.append("matrix pencil gave no usable poles; started from the logarithmic decrement")
     noise = float(noise_sigma) if given else None
     fit = _fit(t, v, keep, rates_mp, rates_ld, modes, noise, resolution, uniform, step, source)
-    main = _assemble(t, v, keep, fit, notes, source_kind="trace")
+    main = _assemble(t, v, keep, fit, notes, source_kind="trace", resolution=resolution)
     if not main.envelope.flagged:
         return main
     period = 2.0 * math.pi / main.angular_frequency.value
@@ -185,6 +185,7 @@ def estimate_ringdown(
         refit,
         notes + [f"{int(near.sum())} samples around the flagged extrema left out"],
         source_kind="trace",
+        resolution=resolution,
         envelope=main.envelope,
         extrema=(main.extrema_time, main.extrema_value),
     )
@@ -531,6 +532,7 @@ def _assemble(
     notes: list[str],
     *,
     source_kind: str,
+    resolution: float | None = None,
     envelope: EnvelopeDiagnostics | None = None,
     extrema: tuple[np.ndarray, np.ndarray] | None = None,
 ) -> RingdownEstimate:
@@ -591,9 +593,16 @@ def _assemble(
         if len(clear) and not clear.all():
             clear[np.argmin(clear) :] = False
         ext_time, ext_value = ext.time[clear], ext.value[clear]
+        ext_sigma = ext.sigma[clear]
+        if resolution:
+            # Near a turning point the signal changes by less than one converter step
+            # over many samples, so they all round the same way: the extremum's
+            # quantisation error does not average down and is about q / sqrt(12)
+            # (uniform rounding error; common practice, no source).
+            ext_sigma = np.hypot(ext_sigma, resolution / math.sqrt(12.0))
         if envelope is None:
             envelope = diagnose_envelope(
-                ext_time, ext.sign[clear] * (ext_value - offset), ext.sigma[clear], kind=source_kind
+                ext_time, ext.sign[clear] * (ext_value - offset), ext_sigma, kind=source_kind
             )
     else:
         ext_time, ext_value = extrema
