@@ -28,7 +28,7 @@ from xcheck.engines.theory import SecondOrder, TheoryNotApplicable, characterise
 from xcheck.errors import SimulationError, XcheckError
 from xcheck.fit import FitResult, Observation, fit_candidate
 from xcheck.fixture import Fixture
-from xcheck.measured import Measured, measure
+from xcheck.measured import Measured, display_path, measure
 from xcheck.rank import Ranked, rank_by_bic
 from xcheck.values import format_eng
 
@@ -192,10 +192,11 @@ def run_comparison(
     if use_ngspice:
         version = _ngspice_version()
     ordered = sorted(outcomes, key=lambda o: (o.ranked.rank is None, o.ranked.rank or 0))
-    inputs = [InputFile("fixture", str(fixture.source), sha256_of(fixture.source))] if fixture.source else []
+    inputs = ([InputFile("fixture", display_path(fixture.source), sha256_of(fixture.source))]
+              if fixture.source else [])
     measurement_path = trace if trace is not None else peaks
-    inputs.append(InputFile("trace" if trace is not None else "peak table", str(measurement_path),
-                            sha256_of(measurement_path)))
+    inputs.append(InputFile("trace" if trace is not None else "peak table",
+                            display_path(measurement_path), sha256_of(measurement_path)))
     loop_findings = tuple(_loop_findings(fixture, ordered))
     verdict = write_verdict(fixture, measured, ordered, loop_findings)
     return Comparison(fixture, measured, observation, tuple(ordered), verdict, tuple(inputs),

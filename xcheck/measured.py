@@ -22,6 +22,16 @@ from xcheck.ringdown import RingdownEstimate, estimate_from_peaks, estimate_ring
 from xcheck.trace import read_peaks, read_trace
 from xcheck.values import format_eng
 
+
+def display_path(path: str | Path) -> str:
+    """``path`` relative to the working folder when it lies below it, else absolute, so
+    reports do not carry a machine's home folders needlessly."""
+    resolved = Path(path).resolve()
+    try:
+        return resolved.relative_to(Path.cwd().resolve()).as_posix()
+    except ValueError:
+        return resolved.as_posix()
+
 #: The fit window ends this many decay time constants after the event: beyond it the
 #: ringing is below 1e-4 of its start and only noise is left.
 WINDOW_TIME_CONSTANTS = 9.0
@@ -126,7 +136,7 @@ class Measured:
         est = self.estimate
         data: dict[str, Any] = {
             "kind": self.kind,
-            "source": self.source,
+            "source": display_path(self.source),
             "damped_frequency_hz": _pair(est.damped_frequency),
             "neper_frequency_per_s": _pair(est.neper_frequency),
             "initial_volts": _pair(est.initial_volts),
