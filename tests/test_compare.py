@@ -11,7 +11,6 @@ from __future__ import annotations
 import json
 import re
 
-import numpy as np
 import pytest
 
 from compare_cases import (

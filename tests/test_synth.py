@@ -7,7 +7,6 @@ chapter "Natural and Step Responses of RLC Circuits"; from memory).
 """
 
 import numpy as np
-import pytest
 
 from xcheck.synth import ScopeCapture, capture_trace, clean_waveform, peak_table
 

@@ -17,14 +17,12 @@ from __future__ import annotations
 import argparse
 import json
 import math
-import os
-import tempfile
-from collections.abc import Callable
 from pathlib import Path
 from typing import TYPE_CHECKING
 
 import numpy as np
 
+from xcheck.atomic import write_atomically
 from xcheck.errors import ValueParseError, XcheckError
 from xcheck.ringdown import DerivedCircuit, Estimate, RingdownEstimate, derive_circuit
 from xcheck.ringdown import estimate_from_peaks, estimate_ringdown
@@ -201,7 +199,7 @@ def run(args: argparse.Namespace) -> int:
             inductance_stderr=l_err,
         )
     png = args.out or DEFAULT_ROOT / args.trace.name.split(".")[0] / "ringdown" / PNG_NAME
-    _atomic_write(png, lambda tmp: write_figure(tmp, estimate, *measured, title=str(args.trace)))
+    write_atomically(png, lambda tmp: write_figure(tmp, estimate, *measured, title=str(args.trace)))
     written = [png]
     if args.json is not None:
         data = estimate.to_json()
@@ -211,7 +209,7 @@ def run(args: argparse.Namespace) -> int:
         if derived is not None:
             data["derived"] = derived.to_json()
         text = json.dumps(_plain(data), indent=2, allow_nan=False)
-        _atomic_write(args.json, lambda tmp: tmp.write_text(text + "\n", encoding="utf-8"))
+        write_atomically(args.json, lambda tmp: tmp.write_text(text + "\n", encoding="utf-8"))
         written.append(args.json)
     print(summary_text(estimate, derived, context, written))
     return 0
@@ -469,23 +467,3 @@ def _shown_span(estimate: RingdownEstimate, time: np.ndarray, extrema_time: np.n
             ring = max(ring, math.log(size / estimate.noise_sigma) / alpha * 1.2)
     return min(end, ring)
 
-
-def _atomic_write(path: Path, writer: Callable[[Path], None]) -> None:
-    """Run ``writer`` on a temporary file next to ``path``, then rename it into place."""
-    temporary: Path | None = None
-    try:
-        path.parent.mkdir(parents=True, exist_ok=True)
-        handle, name = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
-        os.close(handle)
-        temporary = Path(name)
-        writer(temporary)
-        os.replace(temporary, path)
-        temporary = None
-    except OSError as exc:
-        raise XcheckError(
-            f"{path}: cannot write ({exc.strerror or exc}); check that the folder is writable "
-            "or choose another path"
-        ) from exc
-    finally:
-        if temporary is not None and temporary.exists():
-            temporary.unlink()

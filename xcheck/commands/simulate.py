@@ -17,10 +17,7 @@ engines. Each file is written atomically (a temporary file, then a rename).
 from __future__ import annotations
 
 import argparse
-import os
 import sys
-import tempfile
-from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -29,6 +26,7 @@ import numpy as np
 from xcheck.circuit import Circuit, build_circuit
 from xcheck.engines.ngspice import simulate_ngspice
 from xcheck.engines.theory import SecondOrder, TheoryNotApplicable, characterise, simulate_theory
+from xcheck.atomic import write_atomically
 from xcheck.errors import XcheckError
 from xcheck.fixture import Fixture
 from xcheck.fixture_reader import load_fixture
@@ -130,8 +128,8 @@ def run(args: argparse.Namespace) -> int:
         raise XcheckError(f"{folder}: exists and is not a folder; give --out a folder name")
     csv_path = folder / CSV_NAME
     png_path = folder / PNG_NAME
-    _atomic_write(csv_path, lambda tmp: write_csv(tmp, prediction))
-    _atomic_write(png_path, lambda tmp: write_overlay(tmp, prediction, circuit.title))
+    write_atomically(csv_path, lambda tmp: write_csv(tmp, prediction))
+    write_atomically(png_path, lambda tmp: write_overlay(tmp, prediction, circuit.title))
     sys.stdout.write(summary_text(fixture, prediction, [csv_path, png_path]))
     return 0
 
@@ -166,7 +164,7 @@ def summary_text(fixture: Fixture, prediction: Prediction, written: list[Path]) 
         lines += [
             f"    alpha (decay rate)           {format_eng(order.alpha, 'Np/s')}",
             f"    omega0 (undamped frequency)  {format_eng(order.omega0, 'rad/s')}",
-            f"    f_d (ringing frequency)      "
+            "    f_d (ringing frequency)      "
             + (format_eng(order.f_d, "Hz") if order.f_d > 0 else "none (no ringing)"),
             f"    zeta (damping ratio)         {order.zeta:.4g}",
             f"    Q (quality factor)           {order.q:.4g}",
@@ -249,29 +247,4 @@ def write_overlay(path: Path, prediction: Prediction, title: str) -> None:
     plt.close(figure)
 
 
-def _umask() -> int:
-    current = os.umask(0o022)
-    os.umask(current)
-    return current
 
-
-def _atomic_write(path: Path, writer: Callable[[Path], None]) -> None:
-    """Run ``writer`` on a temporary file next to ``path``, then rename it into place."""
-    temporary: Path | None = None
-    try:
-        path.parent.mkdir(parents=True, exist_ok=True)
-        handle, name = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
-        os.close(handle)
-        temporary = Path(name)
-        writer(temporary)
-        os.chmod(temporary, 0o666 & ~_umask())
-        os.replace(temporary, path)
-        temporary = None
-    except OSError as exc:
-        raise XcheckError(
-            f"{path}: cannot write ({exc.strerror or exc}); check that the folder is "
-            "writable, or choose another with --out"
-        ) from exc
-    finally:
-        if temporary is not None and temporary.exists():
-            temporary.unlink()
