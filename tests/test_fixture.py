@@ -18,7 +18,6 @@ from pathlib import Path
 
 import pytest
 
-import xcheck
 from xcheck.errors import FixtureError
 from xcheck.fixture import (
     GROUND,
@@ -453,10 +452,31 @@ def test_file_not_utf8(tmp_path: Path) -> None:
 # Command line
 # --------------------------------------------------------------------------------------
 
-HAS_DECK_COMMAND = (Path(xcheck.__file__).parent / "commands" / "deck.py").exists()
+@pytest.mark.parametrize(
+    ("edits", "match"), [case[1:] for case in BAD_FIXTURES], ids=[c[0] for c in BAD_FIXTURES]
+)
+def test_every_bad_fixture_exits_2_with_one_paragraph_at_the_cli(
+    example_fixture_toml: str,
+    write_toml: Callable[..., Path],
+    tmp_path: Path,
+    capsys: pytest.CaptureFixture[str],
+    edits: tuple[tuple[str, str], ...],
+    match: str,
+) -> None:
+    from xcheck.cli import main
+
+    bad = write_toml(mutate(example_fixture_toml, *edits), "bad.toml")
+    out = tmp_path / "deck.cir"
+    status = main(["deck", str(bad), "--out", str(out)])
+    err = capsys.readouterr().err
+    assert status == 2
+    assert not out.exists()  # nothing written
+    assert err.startswith("xcheck: ") and "Traceback" not in err
+    assert "\n\n" not in err.strip()  # one paragraph
+    # The message is wrapped at spaces for the terminal; unwrap before matching.
+    assert re.search(match, " ".join(err.split())), err
 
 
-@pytest.mark.skipif(not HAS_DECK_COMMAND, reason="the deck command is not built yet")
 def test_cli_reports_a_bad_fixture_in_one_paragraph(
     example_fixture_toml: str,
     write_toml: Callable[..., Path],

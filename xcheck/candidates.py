@@ -237,7 +237,7 @@ def default_ladder(fixture: Fixture, hint: RingHint | None = None) -> list[Candi
         )
     )
     free = ([extra] + _unknown_free(fixture, measured_set, hint)
-            + _reactive_free(fixture, measured_set))
+            + _reactive_free(fixture, measured_set, hint))
     if len(_dedupe(free)) == 1:
         # Nothing is unknown and both reactive values are measured: this rung would
         # repeat "extra-loss" exactly, so the ladder stops there.
@@ -330,8 +330,14 @@ def _other_reactance(fixture: Fixture, parameters: ParameterSet, kind: str) -> f
     return float(sum(values))
 
 
-def _reactive_free(fixture: Fixture, parameters: ParameterSet) -> list[FreeParameter]:
-    """The L or C without a measurement: the ring frequency may contradict its label."""
+def _reactive_free(fixture: Fixture, parameters: ParameterSet,
+                   hint: RingHint | None = None) -> list[FreeParameter]:
+    """The L or C without a measurement: the ring frequency may contradict its label.
+
+    Bounds span a factor of three either side of the label and, when the measured ring
+    implies a value outside that, twice that value too (a wrong label must not pin the
+    fit against a bound).
+    """
     free = []
     for name in fixture.loop:
         part = fixture.parts[name]
@@ -340,12 +346,17 @@ def _reactive_free(fixture: Fixture, parameters: ParameterSet) -> list[FreeParam
         value = parameters.get((name, "value"))
         if not value:
             continue  # written "?": already free
+        lower, upper = value / 3.0, value * 3.0
+        other = _other_reactance(fixture, parameters, part.kind)
+        if hint is not None and hint.omega0 > 0 and other:
+            implied = 1.0 / (hint.omega0**2 * other)
+            lower, upper = min(lower, implied / 2.0), max(upper, implied * 2.0)
         free.append(
             FreeParameter(
                 (name, "value"),
                 start=value,
-                lower=value / 3.0,
-                upper=value * 3.0,
+                lower=lower,
+                upper=upper,
                 unit=unit_of(fixture, (name, "value")),
                 reason="no measurement; the ring frequency tests its label value",
             )

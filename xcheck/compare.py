@@ -272,17 +272,21 @@ def _ngspice_curve(circuit, fit: FitResult, obs: Observation) -> tuple[np.ndarra
         amplitude = float(np.max(np.abs(theory))) or 1.0
         offset = float(np.mean(fit.model - gain * theory))
         return gain * raw + offset, float(np.max(np.abs(raw - theory)) / amplitude)
-    # Peak table: extrema of ngspice's waveform, numbered from the event.
+    # Peak table: ngspice's turning points, numbered from the event as the fit numbers
+    # the readings, scaled by the fitted amplitude.
     second = characterise(circuit)
-    count = int(np.rint((obs.time[-1] - obs.time[0]) / (obs.period / 2))) + 1
+    first = 1 if circuit.response == "step" else 0
+    index = first + np.rint((obs.time - obs.time[0]) / (obs.period / 2)).astype(int)
     half = math.pi / second.omega_d
-    wave = simulate_ngspice(circuit, stop_time=(count + 1) * half)
+    count = int(index.max()) + 1
+    wave = simulate_ngspice(circuit, stop_time=(count + 0.5) * half)
     t_theory = np.arange(count) * half
-    t_ng, v_ng = _extrema_near(wave.time, wave.probe_voltage, t_theory, half / 4)
+    _, v_ng = _extrema_near(wave.time, wave.probe_voltage, t_theory, half / 4)
+    if first == 0:
+        v_ng[0] = float(wave.probe_voltage[0])  # the event itself: the first sample
     theory_wave = simulate_theory(circuit, t_theory).probe_voltage
     amplitude = float(np.max(np.abs(theory_wave))) or 1.0
-    index = np.rint((obs.time - obs.time[0]) / (obs.period / 2)).astype(int)
-    scale = fit.nuisance["amplitude"][0] / (theory_wave[0] or 1.0)
+    scale = fit.nuisance["amplitude"][0]
     return scale * v_ng[index], float(np.max(np.abs(v_ng - theory_wave)) / amplitude)
 
 
@@ -321,9 +325,14 @@ def _metrics(engine: str, obs: Observation, curve: np.ndarray | None, fit: FitRe
     mean_square = chi2 / n
     if engine == "theory":
         aic, bic = fit.aic, fit.bic
-    else:
+    elif obs.kind == "trace":
         aic = n_eff * math.log(mean_square) + 2 * fit.k
         bic = n_eff * math.log(mean_square) + fit.k * math.log(n_eff)
+    else:
+        # Voltages only (ngspice's extremum times are not refitted): comparable between
+        # candidates evaluated by ngspice, not with the closed-form BIC.
+        aic = chi2 + 2 * fit.k
+        bic = chi2 + fit.k * math.log(n)
     f_err = a_err = float("nan")
     if second is not None and second.omega_d > 0:
         f_err = second.omega_d / (2 * math.pi) - measured.damped_frequency_hz.value

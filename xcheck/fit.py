@@ -139,21 +139,25 @@ class _Model:
         return simulate_theory(circuit, np.maximum(times, 0.0)).probe_voltage
 
     def extrema(self, physical: np.ndarray, count: int) -> tuple[np.ndarray, np.ndarray]:
-        """Times (from the event) and unit-amplitude values of the first ``count``
-        extrema: t_k = k pi / omega_d, value (-1)^k exp(-alpha t_k)."""
+        """Times (from the event) and probe voltages of the first ``count`` turning
+        points: t_k = k pi / omega_d (exact for a series loop whose current starts at
+        zero: the capacitor voltage's derivative is proportional to
+        exp(-alpha t) sin(omega_d t)), voltages from the closed form at those times."""
         self.evaluations += 1
         circuit = build_circuit(self.fixture, self.parameters(physical))
         second = characterise(circuit)
         if not second.omega_d > 0:
             raise XcheckError("this candidate does not ring (not underdamped)")
-        k = np.arange(count)
-        t = k * np.pi / second.omega_d
-        return t, (-1.0) ** k * np.exp(-second.alpha * t)
+        t = np.arange(count) * np.pi / second.omega_d
+        return t, simulate_theory(circuit, t).probe_voltage
 
 
-def _peak_indices(obs: Observation) -> np.ndarray:
+def _peak_indices(obs: Observation, first: int) -> np.ndarray:
+    """Number each reading by the half-periods since the first, which is turning point
+    ``first`` (0, the event itself, for a natural response; 1, the first overshoot,
+    for a step)."""
     half = obs.period / 2.0
-    return np.rint((obs.time - obs.time[0]) / half).astype(int)
+    return first + np.rint((obs.time - obs.time[0]) / half).astype(int)
 
 
 def fit_candidate(fixture: Fixture, candidate: Candidate, obs: Observation) -> FitResult:
@@ -317,9 +321,17 @@ def _fit(fixture: Fixture, candidate: Candidate, obs: Observation,
     model_values = residual_fn.model_values(physical, solution.x[n_free:])  # type: ignore[attr-defined]
     residual_volts = obs.voltage - model_values
     rss_volts = float(np.sum(residual_volts**2))
-    mean_square = chi2 / n
-    aic = n_eff * np.log(mean_square) + 2 * k
-    bic = n_eff * np.log(mean_square) + k * np.log(n_eff)
+    if obs.kind == "trace":
+        # Noise level profiled from the residuals (robust to a mis-stated sigma on long
+        # records); -2 ln L = n_eff ln(RSS / n) + const.
+        mean_square = chi2 / n
+        aic = n_eff * np.log(mean_square) + 2 * k
+        bic = n_eff * np.log(mean_square) + k * np.log(n_eff)
+    else:
+        # A peak table has a handful of readings with stated (or estimated) errors:
+        # profiling the variance from so few would hide a bad fit, so -2 ln L = chi^2.
+        aic = chi2 + 2 * k
+        bic = chi2 + k * np.log(n)
     degeneracies = (find_degeneracies(jac_x[:, :n_free], free, physical, scale, jac_x[:, n_free:])
                     if n_free > 1 else ())
     del jac
@@ -401,17 +413,21 @@ def _trace_residuals(model: _Model, obs: Observation, sigma: np.ndarray, start: 
 
 
 def _peak_residuals(model: _Model, obs: Observation, sigma: np.ndarray, start: np.ndarray):
-    index = _peak_indices(obs)
+    first = 1 if model.fixture.response == "step" else 0
+    index = _peak_indices(obs, first)
     count = int(index.max()) + 1
     time_sigma = obs.time_sigma if obs.time_sigma > 0 else obs.period * 1e-3
     t_model0, v_model0 = model.extrema(start, count)
-    ratio = obs.voltage / v_model0[index]
+    ratio = obs.voltage / np.where(v_model0[index] != 0, v_model0[index], 1.0)
     amplitude0 = float(np.median(ratio))
-    origin0 = float(np.mean(obs.time - t_model0[index]))
+    # The table's time base is arbitrary: the first reading fixes where the event was,
+    # within a little over half a period either way (the amplitude's sign absorbs a
+    # reading numbered one turning point off).
+    origin0 = float(obs.time[0] - t_model0[index[0]])
     nuisance_start = np.array([amplitude0, 0.0])
     period = obs.period
-    bounds = (np.array([-np.inf, -0.25 * period / time_sigma]),
-              np.array([np.inf, 0.25 * period / time_sigma]))
+    bounds = (np.array([-np.inf, -0.6 * period / time_sigma]),
+              np.array([np.inf, 0.6 * period / time_sigma]))
 
     def predicted(physical: np.ndarray, nuisance: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         t_model, v_model = model.extrema(physical, count)

@@ -52,8 +52,10 @@ class MeterReading:
 
     @property
     def value(self) -> float:
-        """The part's resistance: the reading minus the lead zero."""
-        return self.reading - self.leads
+        """The part's resistance: the reading minus the lead zero (rounded to 12
+        significant digits, far below any meter's resolution, so that 0.291 - 0.058
+        is 0.233 rather than 0.23299999999999998)."""
+        return float(f"{self.reading - self.leads:.12g}")
 
 
 @dataclass(frozen=True)
@@ -102,8 +104,9 @@ class LoopReading:
 
     @property
     def value(self) -> float:
-        """Sum of the other series resistances at DC: reading minus lead zero."""
-        return self.reading - self.leads
+        """Sum of the other series resistances at DC: reading minus lead zero (rounded
+        to 12 significant digits, as :attr:`MeterReading.value`)."""
+        return float(f"{self.reading - self.leads:.12g}")
 
 
 @dataclass(frozen=True)
