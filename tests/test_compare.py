@@ -89,8 +89,10 @@ def test_two_unmeasured_losses_are_reported_as_their_sum(tmp_path):
     assert groups[0].value == pytest.approx(0.37, abs=3 * groups[0].stderr)
     assert "only their sum is determined" in groups[0].reason
     # The verdict gives the sum, never the members as separate confident numbers.
-    assert " + ".join(groups[0].members) in result.verdict
-    assert not re.search(r"Fitted (C1\.esr|L1\.dcr) =", result.verdict)
+    words = {"loop.extra_resistance": "extra series loss", "L1.dcr": "L1 winding resistance (DCR)",
+             "C1.esr": "C1 ESR"}
+    assert " + ".join(words[m] for m in groups[0].members) in result.verdict
+    assert not re.search(r"Fitted (C1 ESR|L1 winding resistance)", result.verdict)
 
 
 def test_summary_json_and_report_md_carry_the_same_numbers(tmp_path, lossy_fixture):

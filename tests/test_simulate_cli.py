@@ -99,3 +99,21 @@ def test_without_closed_form_only_ngspice_is_written(
 def test_bad_input_exits_2(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
     assert main(["simulate", str(tmp_path / "missing.toml")]) == 2
     assert "missing.toml" in capsys.readouterr().err
+
+
+def test_files_xcheck_did_not_write_are_never_overwritten(write_toml, tmp_path: Path,
+                                                          capsys: pytest.CaptureFixture[str]) -> None:
+    from xcheck.cli import main
+
+    fixture = write_toml(RING_DOWN, "ring.toml")
+    out = tmp_path / "mine"
+    out.mkdir()
+    (out / "prediction.csv").write_text("keep,me\n1,2\n", encoding="utf-8")
+    assert main(["simulate", str(fixture), "--out", str(out)]) == 2
+    assert (out / "prediction.csv").read_text(encoding="utf-8") == "keep,me\n1,2\n"
+    assert not (out / "overlay.png").exists()
+    assert "nothing was written" in " ".join(capsys.readouterr().err.split())
+    # An earlier simulate output is replaced as usual.
+    fresh = tmp_path / "fresh"
+    assert main(["simulate", str(fixture), "--out", str(fresh)]) == 0
+    assert main(["simulate", str(fixture), "--out", str(fresh)]) == 0

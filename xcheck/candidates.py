@@ -103,6 +103,31 @@ def unit_of(fixture: Fixture, key: ParameterKey) -> str:
     return row.parasitics[name]
 
 
+_FIELD_WORDS = {
+    "esr": "ESR",
+    "esl": "ESL",
+    "leakage": "leakage resistance",
+    "dcr": "winding resistance (DCR)",
+    "parallel_capacitance": "winding capacitance",
+    "inductance": "series inductance",
+    "resistance": "resistance",
+}
+_VALUE_WORDS = {"capacitor": "capacitance", "inductor": "inductance", "resistor": "resistance"}
+
+
+def describe_key(fixture: Fixture, key: ParameterKey) -> str:
+    """Plain words for a parameter key: ``("L1", "value")`` -> ``"L1 inductance"``."""
+    part, name = key
+    if part == "loop":
+        return "extra series loss" if name == "extra_resistance" else "extra series inductance"
+    if part in ("probe", "step"):
+        return f"{part} {name.replace('_', ' ')}"
+    kind = fixture.parts[part].kind if part in fixture.parts else ""
+    if name == "value":
+        return f"{part} {_VALUE_WORDS.get(kind, 'value')}"
+    return f"{part} {_FIELD_WORDS.get(name, name.replace('_', ' '))}"
+
+
 def dc_series_keys(fixture: Fixture) -> tuple[ParameterKey, ...]:
     """Keys of every series resistance a DC ohmmeter sees round the loop without the
     capacitor: resistor values, winding, switch and wire resistances."""

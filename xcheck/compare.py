@@ -18,6 +18,8 @@ import numpy as np
 
 from xcheck.candidates import (
     Candidate,
+    describe_key,
+    meter_uncertainty,
     RingHint,
     build_candidates,
     dc_series_keys,
@@ -30,6 +32,7 @@ from xcheck.fit import FitResult, Observation, fit_candidate
 from xcheck.fixture import Fixture
 from xcheck.measured import Measured, display_path, measure
 from xcheck.rank import Ranked, rank_by_bic
+from xcheck.ringdown import estimate_ringdown
 from xcheck.values import format_eng
 
 #: Engines agree to about 1e-4 of the amplitude (tested); beyond 1e-3 it is a deck,
@@ -231,14 +234,16 @@ def _evaluate(
         second = None
         notes.append(str(exc))
     theory_curve = fit.model
-    theory_metrics = _metrics("theory", obs, theory_curve, fit, measured, second)
+    ring = (second.omega_d / (2 * math.pi), second.alpha) if second and second.omega_d > 0 else None
+    theory_metrics = _metrics("theory", obs, theory_curve, fit, measured, ring)
     ngspice_metrics = None
     ngspice_curve = None
     disagreement = float("nan")
     if use_ngspice:
         try:
             ngspice_curve, disagreement = _ngspice_curve(circuit, fit, obs)
-            ngspice_metrics = _metrics("ngspice", obs, ngspice_curve, fit, measured, second)
+            ngspice_metrics = _metrics("ngspice", obs, ngspice_curve, fit, measured,
+                                       _ring_of(obs, ngspice_curve))
         except SimulationError as exc:
             notes.append(f"ngspice: {exc}")
     return CandidateOutcome(
@@ -312,8 +317,23 @@ def _extrema_near(time: np.ndarray, volts: np.ndarray, targets: np.ndarray,
     return out_t, out_v
 
 
+def _ring_of(obs: Observation, curve: np.ndarray) -> tuple[float, float] | None:
+    """f_d (Hz) and alpha (1/s) of an engine's own waveform, estimated by the same
+    ring-down estimator as the measurement (noise-free, so its errors are negligible);
+    None for peak tables or when the waveform does not ring."""
+    if obs.kind != "trace":
+        return None
+    amplitude = float(np.max(np.abs(curve - np.mean(curve)))) or 1.0
+    try:
+        est = estimate_ringdown(obs.time, curve, noise_sigma=1e-6 * amplitude)
+    except (XcheckError, ValueError, np.linalg.LinAlgError):
+        return None
+    return est.damped_frequency.value, est.neper_frequency.value
+
+
 def _metrics(engine: str, obs: Observation, curve: np.ndarray | None, fit: FitResult,
-             measured: Measured, second: SecondOrder | None) -> EngineMetrics | None:
+             measured: Measured, ring: tuple[float, float] | None) -> EngineMetrics | None:
+    """Fit quality of one engine's prediction; ``ring`` is that engine's (f_d, alpha)."""
     if curve is None:
         return None
     error = obs.voltage - curve
@@ -334,9 +354,9 @@ def _metrics(engine: str, obs: Observation, curve: np.ndarray | None, fit: FitRe
         aic = chi2 + 2 * fit.k
         bic = chi2 + fit.k * math.log(n)
     f_err = a_err = float("nan")
-    if second is not None and second.omega_d > 0:
-        f_err = second.omega_d / (2 * math.pi) - measured.damped_frequency_hz.value
-        a_err = second.alpha - measured.neper_frequency_per_s.value
+    if ring is not None:
+        f_err = ring[0] - measured.damped_frequency_hz.value
+        a_err = ring[1] - measured.neper_frequency_per_s.value
     amplitude = abs(measured.initial_volts.value) or float(np.max(np.abs(obs.voltage))) or 1.0
     return EngineMetrics(engine, rmse, rmse / amplitude, float(np.max(np.abs(error))),
                          f_err, a_err, float(aic), float(bic))
@@ -354,13 +374,28 @@ def _loop_findings(fixture: Fixture, outcomes: list[CandidateOutcome]) -> list[s
         esr = sum(best.fit.parameters.get((n, "esr"), 0.0) or 0.0 for n in fixture.loop
                   if fixture.parts[n].kind == "capacitor")
         beyond = total - dc - esr
-        findings.append(
-            f"The DC loop reading accounts for {format_eng(dc, 'ohm')} of the "
-            f"{format_eng(total, 'ohm')} series resistance the best candidate needs; stated "
-            f"ESR adds {format_eng(esr, 'ohm')}, leaving {format_eng(beyond, 'ohm')} of loss "
-            "beyond what DC measurements explain (AC loss: skin and proximity effect, core "
-            "loss, dielectric loss, contact resistance that changed)."
-        )
+        sigma = meter_uncertainty(fixture.loop_reading.reading)
+        head = (f"The DC loop reading accounts for {format_eng(dc, 'ohm')} of the "
+                f"{format_eng(total, 'ohm')} series resistance the best candidate needs, and "
+                f"stated ESR for {format_eng(esr, 'ohm')}")
+        if beyond > 2 * sigma:
+            findings.append(
+                f"{head}, leaving {format_eng(beyond, 'ohm')} of loss beyond what DC "
+                "measurements explain (AC loss: skin and proximity effect, core loss, "
+                "dielectric loss, contact resistance that changed)."
+            )
+        elif beyond < -2 * sigma:
+            findings.append(
+                f"{head}: together {format_eng(-beyond, 'ohm')} MORE than the ringing shows. "
+                "A stated ESR or the loop reading is too high (check the lead zero and the "
+                "contacts during the reading), or the capacitor was not at the temperature "
+                "or frequency its ESR was stated for."
+            )
+        else:
+            findings.append(
+                f"{head}: together they explain the damping within the loop reading's "
+                f"uncertainty (about {format_eng(sigma, 'ohm')})."
+            )
     else:
         dc_known = sum(best.fit.parameters.get(k, 0.0) or 0.0 for k in dc_series_keys(fixture))
         findings.append(
@@ -369,6 +404,11 @@ def _loop_findings(fixture: Fixture, outcomes: list[CandidateOutcome]) -> list[s
             "([loop_reading]) would show how much of it is beyond DC."
         )
     return findings
+
+
+def _label_key(label: str) -> tuple[str, str]:
+    part, _, name = label.partition(".")
+    return (part, name)
 
 
 def _sentence(text: str) -> str:
@@ -393,23 +433,42 @@ def _against_label(fixture: Fixture, value) -> str:
     return text + ")"
 
 
-def _degeneracy_sentences(outcome: CandidateOutcome) -> list[str]:
+def _degeneracy_sentences(fixture: Fixture, outcome: CandidateOutcome) -> list[str]:
     sentences = []
     for group in outcome.fit.degeneracies:
+        names = [describe_key(fixture, _label_key(m)) for m in group.members]
         if group.combination == "sum" and math.isfinite(group.value):
             sentences.append(
-                f"In '{outcome.name}' the data determine only {' + '.join(group.members)} = "
+                f"In '{outcome.name}' the data determine only the sum {' + '.join(names)} = "
                 f"{format_eng(group.value, group.unit)} ± {format_eng(group.stderr, group.unit)}, "
                 "not the parts separately"
             )
         elif group.combination == "product" and math.isfinite(group.value):
             sentences.append(
-                f"In '{outcome.name}' the data determine only the product {' × '.join(group.members)} "
+                f"In '{outcome.name}' the data determine only the product {' × '.join(names)} "
                 f"= {group.value:.4g} {group.unit} (± {group.stderr:.2g}), not the values separately"
             )
         else:
             sentences.append(f"In '{outcome.name}': {group.reason}")
     return sentences
+
+
+#: Residuals beyond this multiple of the noise mean no candidate explains the data.
+MISFIT_LIMIT = 3.0
+
+
+def _misfit(best: CandidateOutcome, measured: Measured) -> float | None:
+    """Residual RMS over noise (trace) or sqrt(reduced chi-square) (peaks) of the best
+    candidate, when it exceeds :data:`MISFIT_LIMIT`; else None."""
+    fit = best.fit
+    if fit.residuals is None or fit.n <= fit.k:
+        return None
+    if measured.kind == "trace":
+        noise = measured.estimate.noise_sigma
+        ratio = fit.rmse / noise if noise > 0 else float("inf")
+    else:
+        ratio = math.sqrt(max(fit.bic - fit.k * math.log(fit.n), 0.0) / (fit.n - fit.k))
+    return ratio if ratio > MISFIT_LIMIT else None
 
 
 def write_verdict(fixture: Fixture, measured: Measured, outcomes: list[CandidateOutcome],
@@ -420,8 +479,18 @@ def write_verdict(fixture: Fixture, measured: Measured, outcomes: list[Candidate
     if best is None:
         return ("No candidate could be fitted to this measurement; see each candidate's "
                 "reason below.")
-    parts = [f"The best explanation of the measurement is candidate '{best.name}' "
-             f"({best.candidate.description})"]
+    parts = []
+    misfit = _misfit(best, measured)
+    if misfit is not None:
+        parts.append(
+            f"NO candidate explains this measurement within its noise: the best, "
+            f"'{best.name}', leaves residuals {misfit:.1f} times the noise. Check that the "
+            "fixture describes this capture (natural or step response, the probed part, "
+            "probe polarity and attenuation, the channel) before reading the numbers below"
+        )
+    lead = "The closest candidate" if misfit is not None else (
+        "The best explanation of the measurement")
+    parts.append(f"{lead} is candidate '{best.name}' ({best.candidate.description})")
     if best.theory is not None:
         parts[-1] += f", NRMSE {best.theory.nrmse:.2%}"
     parts[-1] += "."
@@ -429,10 +498,10 @@ def write_verdict(fixture: Fixture, measured: Measured, outcomes: list[Candidate
         if any(value.label in d.members for d in best.fit.degeneracies):
             continue
         parts.append(
-            f"Fitted {value.label} = {format_eng(value.value, value.unit)} ± "
+            f"Fitted {describe_key(fixture, value.key)} = {format_eng(value.value, value.unit)} ± "
             f"{format_eng(value.stderr, value.unit)}{_against_label(fixture, value)}."
         )
-    parts.extend(_degeneracy_sentences(best))
+    parts.extend(_degeneracy_sentences(fixture, best))
     for other in outcomes:
         if other is best or other.failed or other.ranked.evidence != "not distinguishable":
             continue
@@ -440,7 +509,7 @@ def write_verdict(fixture: Fixture, measured: Measured, outcomes: list[Candidate
             f"Candidate '{other.name}' explains the measurement as well "
             f"(ΔBIC = {other.ranked.delta_bic:.1f}, not distinguishable)"
         )
-        parts.extend(_degeneracy_sentences(other))
+        parts.extend(_degeneracy_sentences(fixture, other))
     as_measured = next((o for o in outcomes if o.name == "as-measured"), None)
     if as_measured is not None and as_measured is not best:
         if as_measured.failed:

@@ -186,6 +186,14 @@ def markdown(comparison: Comparison, data: dict[str, Any]) -> str:
     for outcome in comparison.outcomes:
         for value in outcome.fit.fitted:
             note = "at a bound" if value.at_bound else ""
+            for group in outcome.fit.degeneracies:
+                if value.label in group.members:
+                    held = [m for m in group.members if m != value.label]
+                    shown = ", ".join(
+                        f"{m} held at {format_eng(outcome.fit.parameters.get(_key(m), 0.0) or 0.0, group.unit or value.unit)}"
+                        for m in held)
+                    note = (f"only the {group.combination} with {', '.join(held)} is determined "
+                            f"({shown}); the ± applies to the {group.combination}")
             lines.append(
                 f"| {outcome.name} | {value.label} | {format_eng(value.value, value.unit, 4)} | "
                 f"{format_eng(value.stderr, value.unit, 2)} | {format_eng(value.start, value.unit)} | {note} |"
@@ -225,6 +233,11 @@ def markdown(comparison: Comparison, data: dict[str, Any]) -> str:
     if not safety.hazardous:
         lines += ["", "---", "", "Working with charged capacitors: " + CAUTION]
     return "\n".join(lines) + "\n"
+
+
+def _key(label: str) -> tuple[str, str]:
+    part, _, name = label.partition(".")
+    return (part, name)
 
 
 def _eng(value: float | None, unit: str) -> str:

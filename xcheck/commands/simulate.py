@@ -128,10 +128,32 @@ def run(args: argparse.Namespace) -> int:
         raise XcheckError(f"{folder}: exists and is not a folder; give --out a folder name")
     csv_path = folder / CSV_NAME
     png_path = folder / PNG_NAME
+    _refuse_foreign(csv_path, png_path)
     write_atomically(csv_path, lambda tmp: write_csv(tmp, prediction))
     write_atomically(png_path, lambda tmp: write_overlay(tmp, prediction, circuit.title))
     sys.stdout.write(summary_text(fixture, prediction, [csv_path, png_path]))
     return 0
+
+
+def _written_by_xcheck(csv_path: Path) -> bool:
+    try:
+        with open(csv_path, encoding="utf-8", errors="replace") as handle:
+            return handle.readline().startswith("time_s,ngspice_probe_V")
+    except OSError:
+        return False
+
+
+def _refuse_foreign(csv_path: Path, png_path: Path) -> None:
+    """Replace earlier simulate output only: never a file xcheck did not write."""
+    if not (csv_path.exists() or png_path.exists()):
+        return
+    if csv_path.exists() and _written_by_xcheck(csv_path):
+        return
+    raise XcheckError(
+        f"{csv_path.parent}: holds {CSV_NAME} or {PNG_NAME} that an earlier "
+        "'xcheck simulate' did not write; nothing was written. Choose another --out folder "
+        "or move those files away."
+    )
 
 
 def _unknown_parasitics(fixture: Fixture) -> list[str]:
