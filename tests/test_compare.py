@@ -149,3 +149,29 @@ def test_a_candidate_that_cannot_be_built_is_reported_failed_not_raised(tmp_path
     assert result.best is not None and not result.best.failed
     fitted_l = {v.label: v for v in result.best.fit.fitted}["L1.value"]
     assert fitted_l.value == pytest.approx(215e-6, abs=3 * fitted_l.stderr)
+
+
+def test_a_capture_that_no_candidate_fits_is_called_out(tmp_path, lossy_fixture):
+    """A ring at sqrt(2) times the frequency the measured L and C allow: no rung frees
+    L or C, so nothing fits, and the verdict must say so before anything else."""
+    from compare_cases import lossy_capture
+    from xcheck.synth import capture_trace, write_capture_csv
+
+    capture = lossy_capture(31).with_(inductance=215e-6 / 2)
+    path = write_capture_csv(tmp_path / "other.csv", *capture_trace(capture))
+    result = run_comparison(lossy_fixture, trace=path, use_ngspice=False)
+    assert result.verdict.startswith("NO candidate explains this measurement")
+
+
+def test_losses_above_what_the_ringing_shows_are_reported_as_such(tmp_path, lossy_fixture):
+    """True series resistance 0.6 ohm, while R1 + SW1 + ESR alone state 1.025 ohm."""
+    from compare_cases import lossy_capture
+    from xcheck.synth import capture_trace, write_capture_csv
+
+    capture = lossy_capture(32).with_(resistance=0.6)
+    path = write_capture_csv(tmp_path / "low.csv", *capture_trace(capture))
+    result = run_comparison(lossy_fixture, trace=path, use_ngspice=False)
+    extra = {v.label: v for v in result.outcome("extra-loss").fit.fitted}["loop.extra_resistance"]
+    # Fitted correction: 0.6 - 1.025 = -0.425 ohm, within 3 standard errors.
+    assert abs(extra.value + 0.425) < 3 * extra.stderr
+    assert "MORE than the ringing shows" in result.verdict
