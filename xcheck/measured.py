@@ -166,7 +166,9 @@ def _finite(value: float) -> float | None:
 
 
 def _pair(estimate) -> dict[str, float | None]:
-    return {"value": _finite(estimate.value), "stderr": _finite(estimate.stderr)}
+    crb = getattr(estimate, "crb", None)
+    return {"value": _finite(estimate.value), "stderr": _finite(estimate.stderr),
+            "crb": _finite(crb) if crb is not None else None}
 
 
 def _time_scatter(time: np.ndarray, period: float) -> float:

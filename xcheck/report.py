@@ -244,12 +244,26 @@ def _eng(value: float | None, unit: str) -> str:
     return "n/a" if value is None or not math.isfinite(value) else format_eng(value, unit, 4)
 
 
+_MEASURED_ROWS = (
+    ("damped_frequency_hz", "damped frequency f_d", "Hz"),
+    ("neper_frequency_per_s", "neper frequency α (decay rate)", "1/s"),
+    ("initial_volts", "voltage at the event", "V"),
+)
+
+
 def _measured_lines(measured: dict[str, Any]) -> list[str]:
-    lines = ["| quantity | value | ± standard error |", "|---|---:|---:|"]
-    for key, unit in (("damped_frequency_hz", "Hz"), ("neper_frequency_per_s", "1/s"),
-                      ("initial_volts", "V")):
+    lines = ["| quantity | value | ± standard error | Cramér-Rao bound |", "|---|---:|---:|---:|"]
+    for key, words, unit in _MEASURED_ROWS:
         item = measured.get(key) or {}
-        lines.append(f"| {key} | {_num(item.get('value'), 6)} {unit} | {_num(item.get('stderr'), 3)} {unit} |")
+        crb = item.get("crb")
+        lines.append(f"| {words} | {_num(item.get('value'), 6)} {unit} | "
+                     f"{_num(item.get('stderr'), 3)} {unit} | "
+                     f"{_num(crb, 3) + ' ' + unit if crb is not None else 'n/a'} |")
+    alignment = measured.get("alignment")
+    if alignment:
+        lines += ["", f"- event at {_eng(alignment['event_time_s'], 's')} in the file's time base"
+                  f"{' (given by hand)' if alignment['manual'] else ''}; pre-event level "
+                  f"{_eng(alignment['baseline_volts'], 'V')}, noise {_eng(alignment['noise_rms_volts'], 'V')} RMS"]
     lines += ["", f"- envelope is one exponential: {'yes' if measured.get('envelope_exponential') else 'no'}",
               f"- flagged extrema (0-based, time order): {measured.get('flagged_extrema') or 'none'}"]
     for finding in measured.get("notes", []) or measured.get("findings", []):
