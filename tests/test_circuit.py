@@ -2,7 +2,7 @@
 conditions, errors, and the topology checks.
 
 These are structural tests: the expected elements follow from the part models written
-in xcheck.circuit's table (ESR in series, leakage across the ideal capacitance, ...),
+in xcheck.expand's table (ESR in series, leakage across the ideal capacitance, ...),
 which are the usual lumped models of real parts (common practice, no source). That the
 expanded circuit behaves as circuit theory says is checked with ngspice in
 tests/test_deck.py. Element values are copies of the fixture's numbers, compared to
@@ -20,13 +20,13 @@ from xcheck.circuit import (
     Circuit,
     Element,
     TopologyError,
-    build_circuit,
     check_topology,
     circuit_graph,
     spice_identifier,
     topology_problems,
 )
 from xcheck.errors import FixtureError, XcheckError
+from xcheck.expand import build_circuit
 from xcheck.fixture import Fixture, Part, ProbeLoading, StepSource, load_fixture
 from xcheck.parameters import ORIGIN_FITTED, parameters_from_fixture
 
@@ -348,3 +348,17 @@ def test_topology_bad_names_values_and_references() -> None:
     assert "C_1 has the value -1e-06; expected a positive value" in text
     assert "the probe node '7' is not in the circuit" in text
     assert "the current sense 'R_DUP' is not a voltage source" in text
+
+
+def test_expansion_names_still_reachable_from_circuit() -> None:
+    # The expansion moved to xcheck.expand; the old import path resolves to the same
+    # objects (PEP 562 module __getattr__), and unknown names still raise.
+    import xcheck.circuit as circuit_module
+    import xcheck.expand as expand_module
+    from xcheck.circuit import build_circuit as old_path
+
+    assert old_path is build_circuit
+    for name in ("parameter_problems", "PSEUDO_FIELDS", "SERIES_LAYOUT", "PARALLEL_ROLES"):
+        assert getattr(circuit_module, name) is getattr(expand_module, name)
+    with pytest.raises(AttributeError, match="has no attribute 'no_such_name'"):
+        getattr(circuit_module, "no_such_name")

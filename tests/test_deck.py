@@ -33,7 +33,7 @@ import numpy as np
 import pytest
 
 from xcheck import cli
-from xcheck.circuit import Circuit, Element, build_circuit
+from xcheck.circuit import Circuit, Element
 from xcheck.deck import (
     DEFAULT_OPTIONS,
     deck_names,
@@ -43,6 +43,7 @@ from xcheck.deck import (
     tran_values,
     write_deck,
 )
+from xcheck.expand import build_circuit
 from xcheck.fixture import Fixture, Part, StepSource, load_fixture
 from xcheck.parameters import parameters_from_fixture
 from xcheck.timing import transient_settings

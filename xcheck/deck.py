@@ -182,7 +182,7 @@ def tran_values(settings: TransientSettings) -> tuple[float, float, float]:
 class DeckNames:
     """How a circuit's names appear in its deck.
 
-    For any circuit built by :func:`xcheck.circuit.build_circuit` the mappings are
+    For any circuit built by :func:`xcheck.expand.build_circuit` the mappings are
     the identity; they differ only when a circuit carries unsafe or clashing names.
 
     Attributes
@@ -291,7 +291,7 @@ def write_deck(
     Parameters
     ----------
     circuit
-        The circuit (see :func:`xcheck.circuit.build_circuit`).
+        The circuit (see :func:`xcheck.expand.build_circuit`).
     stop_time
         Length of the transient in seconds (e.g. a measured trace's length); None lets
         :func:`xcheck.timing.transient_settings` choose it from the circuit.
@@ -314,7 +314,7 @@ def write_deck(
     ------
     ValueError
         When an element value or initial condition is not finite, or an option name
-        is not a plain identifier (programming errors: :func:`~xcheck.circuit.build_circuit` and
+        is not a plain identifier (programming errors: :func:`~xcheck.expand.build_circuit` and
         :func:`~xcheck.circuit.check_topology` never let these through).
     """
     settings = transient_settings(circuit, stop_time=stop_time)

@@ -29,7 +29,7 @@ Fixtures are data, never code: nothing is evaluated and nothing else is included
 - A part's own R, L or C must be > 0; series parasitics and stray capacitances must be
   >= 0 (0 means ideal); a parallel resistance (``leakage``) must be > 0.
 - Titles and part names reach the SPICE deck, so they may not hold anything that could
-  become a SPICE or control-language line (see :func:`_unsafe_text`).
+  become a SPICE or control-language line (see :func:`xcheck.fixture_text._unsafe_text`).
 """
 
 from __future__ import annotations

@@ -4,13 +4,18 @@ Every problem in a file is collected and reported together in one
 :class:`~xcheck.errors.FixtureError`, each naming the key, the bad value, what was
 expected (the example printed from the part kind's row in :mod:`xcheck.schema`) and how
 to fix it. Fixtures are data, never code: no includes, no evaluation.
+
+This module owns the entry points (:func:`load_fixture`, :func:`parse_fixture`,
+:func:`parse_fixture_text`) and the document-level checks (top-level keys, title,
+response, the loop, the probe, stored energy, the optional tables). The part-level
+checks live in :mod:`xcheck.fixture_parts`, the title and part-name safety rules in
+:mod:`xcheck.fixture_text` and the wording helpers in :mod:`xcheck.fixture_messages`;
+their public names are importable from here as before.
 """
 
 from __future__ import annotations
 
 import copy
-import difflib
-import json
 import re
 import tomllib
 from dataclasses import replace
@@ -18,18 +23,39 @@ from pathlib import Path
 from types import MappingProxyType
 from typing import Any, Mapping
 
-from xcheck.errors import FixtureError, ValueParseError
+from xcheck.errors import FixtureError
 from xcheck.fixture import (
     Fixture,
     LoopReading,
-    MeterReading,
     Part,
     ProbeLoading,
     Response,
     StepSource,
 )
-from xcheck.schema import PART_KINDS, UNKNOWN_MARK, PartKind
-from xcheck.values import parse_tolerance, parse_value
+from xcheck.fixture_messages import (
+    _MISSING,
+    _is_table,
+    _key,
+    _listing,
+    _show,
+    _suggest,
+)
+from xcheck.fixture_parts import _METER_KEYS, PARALLEL_RESISTANCES, _PartReader
+from xcheck.fixture_text import CONTROL_WORDS, PART_NAME_RE, TITLE_MAX, title_problem
+from xcheck.schema import PART_KINDS, UNKNOWN_MARK
+
+__all__ = [
+    "CONTROL_WORDS",
+    "PARALLEL_RESISTANCES",
+    "PART_NAME_RE",
+    "RESERVED_TABLES",
+    "RESPONSES",
+    "TITLE_MAX",
+    "TOP_LEVEL_KEYS",
+    "load_fixture",
+    "parse_fixture",
+    "parse_fixture_text",
+]
 
 #: Top-level keys of fixture format version 1, in documentation order.
 TOP_LEVEL_KEYS: tuple[str, ...] = (
@@ -39,38 +65,10 @@ TOP_LEVEL_KEYS: tuple[str, ...] = (
 RESERVED_TABLES: tuple[str, ...] = ("candidates",)
 RESPONSES: tuple[str, ...] = ("natural", "step")
 
-#: A part name: a letter, then letters, digits or underscores, 32 characters at most.
-PART_NAME_RE = re.compile(r"[A-Za-z][A-Za-z0-9_]{0,31}")
-#: Longest title accepted (it becomes the deck's first line and a report heading).
-TITLE_MAX = 200
-#: Words of ngspice's control language that could run commands or open a control block
-#: if they ever reached the start of a deck line; refused in titles and part names as
-#: whole words, any case. (The deck writer sanitises again; this is the first fence.)
-CONTROL_WORDS: frozenset[str] = frozenset(
-    {"control", "endc", "shell", "system", "unixcom", "exec"}
-)
-_DOT_WORD_RE = re.compile(r"(?:^|\s)\.[A-Za-z]")
-_WORD_RE = re.compile(r"[A-Za-z_]+")
-
-#: Parasitics that sit in parallel with their part. Zero would short the part out, so
-#: they must be > 0 (leave the key out for an ideal part). Every other parasitic sits in
-#: series (or is a stray capacitance across a part), where 0 simply means "ideal", so
-#: those must be >= 0. A part's own R, L or C must be > 0: zero capacitance is an open
-#: loop, zero inductance or resistance is a wire (use kind = "wire" for that).
-PARALLEL_RESISTANCES: frozenset[str] = frozenset({"leakage"})
-
 _EXAMPLE_LOOP = 'loop = ["SW1", "C1", "R1", "L1"]'
-_METER_KEYS = ("reading", "leads")
 _PROBE_KEYS = ("resistance", "capacitance")
 _STEP_KEYS = ("volts", "source_resistance")
 _TOML_LINE_RE = re.compile(r"\(at line (\d+), column (\d+)\)")
-
-
-class _Missing:
-    """Marker for a key that is absent (distinct from any TOML value)."""
-
-
-_MISSING = _Missing()
 
 
 def load_fixture(path: str | Path) -> Fixture:
@@ -181,7 +179,7 @@ def parse_fixture(data: Mapping[str, Any], source: str) -> Fixture:
     return _Parser(data, source).run()
 
 
-class _Parser:
+class _Parser(_PartReader):
     """Walks one fixture document, collecting problems instead of stopping at the first."""
 
     def __init__(self, data: Mapping[str, Any], source: str) -> None:
@@ -192,15 +190,6 @@ class _Parser:
         self.defined: list[str] | None = None
         #: Keys that already have a problem (to avoid knock-on reports).
         self.failed: set[str] = set()
-
-    # -- reporting -----------------------------------------------------------------
-
-    def problem(self, key: str, value: object, message: str, fix: str) -> None:
-        self.failed.add(key)
-        if value is _MISSING:  # "probe is missing; ..."
-            self.problems.append(f"{key} {message}; {fix}")
-        else:  # 'probe = "C9": is not a part ...; ...'
-            self.problems.append(f"{key} = {_show(value)}: {message}; {fix}")
 
     # -- whole document ------------------------------------------------------------
 
@@ -264,11 +253,7 @@ class _Parser:
         if not isinstance(value, str):
             self.problem("title", value, "must be a string", fix)
             return None
-        reason = _unsafe_text(value)
-        if reason is None and not value.strip():
-            reason = "is empty"
-        if reason is None and len(value) > TITLE_MAX:
-            reason = f"is longer than {TITLE_MAX} characters"
+        reason = title_problem(value)
         if reason is not None:
             self.problem(
                 "title", value, reason,
@@ -324,281 +309,6 @@ class _Parser:
             if part is not None and name_ok:
                 parts[name] = part
         return parts
-
-    def part_name(self, name: str) -> bool:
-        reason = None
-        if not PART_NAME_RE.fullmatch(name):
-            reason = (
-                "is not a valid part name: it must start with a letter and hold only "
-                "letters, digits and underscores, 32 characters at most"
-            )
-        elif name.lower() in CONTROL_WORDS:
-            reason = (
-                "is a word of ngspice's control language and may not be used as a "
-                "part name"
-            )
-        if reason is not None:
-            self.problem(
-                _key("parts", name), _MISSING, reason,
-                "rename the part, e.g. [parts.C1] (part names reach the SPICE deck, so "
-                "they may not hold anything SPICE could read as a command)",
-            )
-            return False
-        return True
-
-    def part(self, name: str, table: object) -> Part | None:
-        base = _key("parts", name)
-        if not _is_table(table):
-            self.problem(
-                base, table, "must be a table describing the part",
-                "e.g. " + PART_KINDS["capacitor"].example,
-            )
-            return None
-        kind_name = table.get("kind", _MISSING)
-        kinds = _listing(PART_KINDS)
-        if kind_name is _MISSING:
-            self.problem(
-                f"{base}.kind", _MISSING, "is missing",
-                f"add kind = one of {kinds}, e.g. " + PART_KINDS["capacitor"].example,
-            )
-            return None
-        if not isinstance(kind_name, str) or kind_name not in PART_KINDS:
-            hint = _suggest(kind_name, PART_KINDS) if isinstance(kind_name, str) else ""
-            self.problem(
-                f"{base}.kind", kind_name, "is not a known kind of part",
-                f"{hint}the kinds are {kinds}",
-            )
-            return None
-        row = PART_KINDS[kind_name]
-        allowed = row.allowed_keys()
-        for key in table:
-            if key == "initial" and row.initial_unit is None:
-                self.problem(
-                    _key("parts", name, key), table[key],
-                    f"{_a(kind_name)} stores no energy, so it has no initial value",
-                    "initial is only for a capacitor (volts) or an inductor (amperes); "
-                    "remove it",
-                )
-            elif key not in allowed:
-                owners = [k for k, r in PART_KINDS.items() if key in r.allowed_keys()]
-                elsewhere = (
-                    f" ({key} belongs to {_listing(owners, 'or')})" if owners else ""
-                )
-                self.problem(
-                    _key("parts", name, key), table[key],
-                    f"is not a key of {_a(kind_name)}{elsewhere}",
-                    f"{_suggest(key, allowed)}{_a(kind_name)} takes {_listing(allowed)}, "
-                    f"e.g. {row.example}",
-                )
-        unknown: set[str] = set()
-        nominal = measured = tolerance = initial = None
-        meter: MeterReading | None = None
-        if row.unit is not None:
-            nominal = self.value(
-                name, row, "nominal", table.get("nominal", _MISSING), row.unit,
-                positive=True, unknown=unknown, required=row.needs_nominal,
-            )
-            measured, meter = self.measured(name, row, table.get("measured", _MISSING))
-            tolerance = self.tolerance(name, row, table.get("tolerance", _MISSING))
-        parasitics: dict[str, float] = {}
-        for key, unit in row.parasitics.items():
-            found = self.value(
-                name, row, key, table.get(key, _MISSING), unit,
-                positive=key in PARALLEL_RESISTANCES, unknown=unknown,
-            )
-            if found is not None:
-                parasitics[key] = found
-        if "initial" in table and row.initial_unit is not None:
-            initial = self.value(
-                name, row, "initial", table["initial"], row.initial_unit,
-                positive=None, unknown=None,
-            )
-        return Part(
-            name=name,
-            kind=kind_name,
-            nominal=nominal,
-            measured=measured,
-            meter=meter,
-            tolerance=tolerance,
-            parasitics=MappingProxyType(parasitics),
-            initial=initial,
-            unknown=frozenset(unknown),
-        )
-
-    def value(
-        self,
-        name: str,
-        row: PartKind,
-        key: str,
-        raw: object,
-        unit: str,
-        *,
-        positive: bool | None,
-        unknown: set[str] | None,
-        required: bool = False,
-    ) -> float | None:
-        """One value of a part; ``positive`` True: > 0, False: >= 0, None: any sign.
-
-        ``unknown`` collects keys written as "?"; None means "?" is not allowed here.
-        """
-        where = _key("parts", name, key)
-        form = f"e.g. {row.example}"
-        if raw is _MISSING:
-            if required:
-                self.problem(
-                    where, _MISSING, f"is missing; {_a(row.kind)} needs its label value",
-                    f'add {key} = "..." (or "{UNKNOWN_MARK}" if it is not known), {form}',
-                )
-            return None
-        if isinstance(raw, str) and raw.strip() == UNKNOWN_MARK:
-            if unknown is None:
-                self.problem(
-                    where, raw, f'may not be "{UNKNOWN_MARK}"',
-                    "the initial voltage or current is what you set up before t = 0 and "
-                    "the whole waveform scales with it, so it cannot be left to a fit; "
-                    f"write the value you charged to, {form}",
-                )
-                return None
-            unknown.add(key)
-            return None
-        return self._number(where, raw, unit, positive, form)
-
-    def _number(
-        self, where: str, raw: object, unit: str, positive: bool | None, form: str
-    ) -> float | None:
-        """Parse one value, check its sign, report a problem and return None if bad."""
-        if isinstance(raw, (list, dict)):
-            self.problem(
-                where, raw, f"must be a single value in {_unit_name(unit)}",
-                f"write it as a number or a quoted string such as \"4.7u\", {form}",
-            )
-            return None
-        try:
-            number = parse_value(raw, unit=unit)  # type: ignore[arg-type]
-        except ValueParseError as exc:
-            self.problem(where, raw, str(exc), f"give a value in {_unit_name(unit)}, {form}")
-            return None
-        if positive is True and number <= 0:
-            self.problem(
-                where, raw, f"must be greater than zero (got {number:g} {unit})",
-                f"write the positive value, {form}",
-            )
-            return None
-        if positive is False and number < 0:
-            self.problem(
-                where, raw, f"must be zero or positive (got {number:g} {unit})",
-                f"write the magnitude (0 means an ideal part), {form}",
-            )
-            return None
-        return number
-
-    def measured(
-        self, name: str, row: PartKind, raw: object
-    ) -> tuple[float | None, MeterReading | None]:
-        where = _key("parts", name, "measured")
-        form = f"e.g. {row.example}"
-        if raw is _MISSING:
-            return None, None
-        if isinstance(raw, str) and raw.strip() == UNKNOWN_MARK:
-            self.problem(
-                where, raw, f'may not be "{UNKNOWN_MARK}"',
-                "measured is what a meter read; leave it out when there is no reading, "
-                f'and write nominal = "{UNKNOWN_MARK}" for a value to be fitted',
-            )
-            return None, None
-        if not _is_table(raw):
-            return self._number(where, raw, row.unit or "", True, form), None
-        if row.kind != "resistor":
-            self.problem(
-                where, raw,
-                "a {reading, leads} meter reading applies only to resistors (a two-wire "
-                "ohmmeter reading minus its shorted-lead zero)",
-                f"give the {row.kind}'s measured value as a plain value, {form}",
-            )
-            return None, None
-        pair = self.meter_pair(
-            where, raw, 'e.g. measured = { reading = "0.291", leads = "0.058" }'
-        )
-        if pair is None:
-            return None, None
-        meter = MeterReading(*pair)
-        return meter.value, meter
-
-    def meter_pair(
-        self, where: str, raw: Mapping[str, Any], form: str, *, check_keys: bool = True
-    ) -> tuple[float, float] | None:
-        """``{reading, leads}`` in ohms: reading > 0, 0 <= leads < reading."""
-        for key in raw if check_keys else ():
-            if key not in _METER_KEYS:
-                self.problem(
-                    f"{where}.{_key(key)}", raw[key], "is not a key of a meter reading",
-                    f"a meter reading takes {_listing(_METER_KEYS)}, {form}",
-                )
-        if "reading" not in raw:
-            self.problem(
-                f"{where}.reading", _MISSING, "is missing",
-                f"give the ohmmeter reading and the shorted-lead zero, {form}",
-            )
-            return None
-        reading: float | None = None
-        if not self._no_unknown(f"{where}.reading", raw["reading"], "an ohmmeter reading"):
-            reading = self._number(f"{where}.reading", raw["reading"], "ohm", True, form)
-        leads: float | None = 0.0
-        if "leads" in raw:
-            leads = None
-            if not self._no_unknown(f"{where}.leads", raw["leads"], "the shorted-lead zero"):
-                leads = self._number(f"{where}.leads", raw["leads"], "ohm", False, form)
-        if reading is None or leads is None:
-            return None
-        if leads >= reading:
-            self.problem(
-                f"{where}.leads", raw["leads"],
-                f"is not smaller than the reading ({raw['reading']!s}): the part's "
-                "resistance would be zero or negative",
-                "leads is the reading with the probe tips shorted together; check both "
-                "values",
-            )
-            return None
-        return reading, leads
-
-    def _no_unknown(self, where: str, raw: object, what: str) -> bool:
-        if isinstance(raw, str) and raw.strip() == UNKNOWN_MARK:
-            self.problem(
-                where, raw, f'may not be "{UNKNOWN_MARK}"',
-                f"{what} is a measurement; leave the whole table out if it was not taken",
-            )
-            return True
-        return False
-
-    def tolerance(self, name: str, row: PartKind, raw: object) -> float | None:
-        where = _key("parts", name, "tolerance")
-        fix = 'write a percentage such as tolerance = "20%"'
-        form = 'e.g. tolerance = "20%"'
-        if raw is _MISSING:
-            return None
-        if isinstance(raw, str) and raw.strip() == UNKNOWN_MARK:
-            self.problem(
-                where, raw, f'may not be "{UNKNOWN_MARK}"',
-                "a tolerance is the spread printed on the part; leave it out when not "
-                f"known ({fix})",
-            )
-            return None
-        if not isinstance(raw, str):
-            self.problem(where, raw, "is not a percentage", fix)
-            return None
-        try:
-            fraction = parse_tolerance(raw)
-        except ValueParseError as exc:
-            self.problem(where, raw, str(exc), form)
-            return None
-        if fraction >= 1:
-            self.problem(
-                where, raw,
-                "must be below 100 % (at 100 % or more the part could have no value at all)",
-                fix,
-            )
-            return None
-        return fraction
 
     # -- loop and probe ------------------------------------------------------------
 
@@ -812,91 +522,3 @@ class _Parser:
         if volts is None or resistance is None or response != "step":
             return None
         return StepSource(volts=volts, source_resistance=resistance)
-
-
-def _unsafe_text(text: str) -> str | None:
-    """Why ``text`` could smuggle a line into a SPICE deck, or None when it is safe."""
-    bad = [c for c in text if not c.isprintable()]
-    if bad:
-        return (
-            f"holds a line break or control character ({_show(bad[0])}); it must be one "
-            "line of printable text"
-        )
-    stripped = text.lstrip()
-    if stripped[:1] in (".", "*", "+"):
-        return (
-            f"starts with {stripped[0]!r}, which SPICE reads as a dot-command, comment "
-            "or continuation line"
-        )
-    if _DOT_WORD_RE.search(text):
-        return "holds a word starting with '.', which looks like a SPICE dot-command"
-    words = sorted({w.lower() for w in _WORD_RE.findall(text)} & CONTROL_WORDS)
-    if words:
-        return (
-            f"holds {_listing(words)}, a word of ngspice's control language, which can "
-            "run commands"
-        )
-    return None
-
-
-def _is_table(value: object) -> bool:
-    return isinstance(value, Mapping)
-
-
-def _key(*segments: str) -> str:
-    """A dotted TOML key, quoting segments that are not bare keys."""
-    return ".".join(s if _BARE_KEY_RE.fullmatch(s) else _quote(s) for s in segments)
-
-
-_BARE_KEY_RE = re.compile(r"[A-Za-z0-9_-]+")
-
-
-def _quote(text: str) -> str:
-    """Text in double quotes with control and other non-printable characters escaped."""
-    escaped = json.dumps(text, ensure_ascii=False)
-    return "".join(c if c.isprintable() else f"\\u{ord(c):04x}" for c in escaped)
-
-
-def _show(value: object, limit: int = 60) -> str:
-    """A bad value as the user would write it in TOML, shortened when long."""
-    if isinstance(value, str):
-        shown = _quote(value)
-    elif isinstance(value, bool):
-        shown = "true" if value else "false"
-    elif isinstance(value, (int, float)):
-        shown = repr(value)
-    elif isinstance(value, Mapping):
-        items = (f"{_key(str(k))} = {_show(v, 20)}" for k, v in value.items())
-        shown = "{ " + ", ".join(items) + " }"
-    elif isinstance(value, list):
-        shown = "[" + ", ".join(_show(v, 20) for v in value) + "]"
-    else:
-        shown = _quote(str(value))
-    return shown if len(shown) <= limit else shown[: limit - 3] + "..."
-
-
-def _listing(items: object, word: str = "and") -> str:
-    names = [str(i) for i in items]  # type: ignore[attr-defined]
-    if len(names) <= 1:
-        return "".join(names)
-    return ", ".join(names[:-1]) + f" {word} " + names[-1]
-
-
-def _suggest(word: str, choices: object) -> str:
-    """``"did you mean X? "`` for a close or case-only match, else an empty string."""
-    options = [str(c) for c in choices]  # type: ignore[attr-defined]
-    same_case = [c for c in options if c.lower() == word.lower()]
-    close = same_case or difflib.get_close_matches(word, options, n=1, cutoff=0.7)
-    return f"did you mean {close[0]}? " if close else ""
-
-
-def _a(noun: str) -> str:
-    """The noun with its indefinite article ("an inductor", "a switch")."""
-    return ("an " if noun[:1].lower() in "aeiou" else "a ") + noun
-
-
-def _unit_name(unit: str) -> str:
-    return {
-        "F": "farads", "H": "henries", "ohm": "ohms", "V": "volts", "A": "amperes",
-        "s": "seconds", "Hz": "hertz",
-    }.get(unit, unit)

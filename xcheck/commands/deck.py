@@ -14,9 +14,9 @@ import sys
 import tempfile
 from pathlib import Path
 
-from xcheck.circuit import build_circuit
 from xcheck.deck import is_xcheck_deck, write_deck
 from xcheck.errors import XcheckError
+from xcheck.expand import build_circuit
 from xcheck.fixture_reader import load_fixture
 from xcheck.parameters import parameters_from_fixture
 from xcheck.values import format_eng

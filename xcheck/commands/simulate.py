@@ -23,11 +23,12 @@ from pathlib import Path
 
 import numpy as np
 
-from xcheck.circuit import Circuit, build_circuit
+from xcheck.circuit import Circuit
 from xcheck.engines.ngspice import simulate_ngspice
 from xcheck.engines.theory import SecondOrder, TheoryNotApplicable, characterise, simulate_theory
 from xcheck.atomic import write_atomically
 from xcheck.errors import XcheckError
+from xcheck.expand import build_circuit
 from xcheck.fixture import Fixture
 from xcheck.fixture_reader import load_fixture
 from xcheck.parameters import parameters_from_fixture
