@@ -40,6 +40,20 @@ def _style(axis: plt.Axes) -> None:
         axis.spines[side].set_visible(False)
 
 
+def _finish(fig: plt.Figure, axis: plt.Axes, path: Path, xlabel: str, ylabel: str,
+            title: str) -> Path:
+    """Label, style, save and close a one-panel figure."""
+    axis.set_xlabel(xlabel)
+    axis.set_ylabel(ylabel)
+    axis.set_title(title, fontsize=10)
+    axis.legend(fontsize=8, frameon=False)
+    _style(axis)
+    fig.tight_layout()
+    fig.savefig(path)
+    plt.close(fig)
+    return path
+
+
 def overlay_figure(path: Path, time: np.ndarray, measured: np.ndarray,
                    curves: Sequence[tuple[str, np.ndarray]], title: str,
                    peaks: bool = False) -> Path:
@@ -68,16 +82,9 @@ def overlay_figure(path: Path, time: np.ndarray, measured: np.ndarray,
                   color=SHADES[i % len(SHADES)], linewidth=1.4,
                   marker=MARKERS[(i + 1) % len(MARKERS)] if peaks else None,
                   markersize=6, markerfacecolor="none", label=label, zorder=2)
-    axis.set_xlabel(f"time from the first reading ({prefix}s)" if peaks
-                    else f"time from the event ({prefix}s)")
-    axis.set_ylabel("probe voltage (V)")
-    axis.set_title(title, fontsize=10)
-    axis.legend(fontsize=8, frameon=False)
-    _style(axis)
-    fig.tight_layout()
-    fig.savefig(path)
-    plt.close(fig)
-    return path
+    xlabel = (f"time from the first reading ({prefix}s)" if peaks
+              else f"time from the event ({prefix}s)")
+    return _finish(fig, axis, path, xlabel, "probe voltage (V)", title)
 
 
 def residual_figure(path: Path, time: np.ndarray,
@@ -133,12 +140,4 @@ def envelope_figure(path: Path, times: np.ndarray, amplitudes: np.ndarray,
         line_t = np.linspace(0.0, float(times.max()), 200)
         axis.semilogy(line_t * factor, abs(amplitude0) * np.exp(-alpha * line_t), linestyle="--",
                       color=SHADES[0], label="fitted exp(-αt)")
-    axis.set_xlabel(f"time from the event ({prefix}s)")
-    axis.set_ylabel("|extremum| (V)")
-    axis.set_title(title, fontsize=10)
-    axis.legend(fontsize=8, frameon=False)
-    _style(axis)
-    fig.tight_layout()
-    fig.savefig(path)
-    plt.close(fig)
-    return path
+    return _finish(fig, axis, path, f"time from the event ({prefix}s)", "|extremum| (V)", title)
