@@ -18,7 +18,10 @@ import pytest
 import scipy.signal
 
 from xcheck.errors import TraceError
+from xcheck.measured import _time_scatter
 from xcheck.ringdown import RingdownEstimate, diagnose_envelope, estimate_from_peaks
+from xcheck.ringdown.peaks import decimal_resolution
+from xcheck.trace import read_peaks
 
 R, L, C, V0 = 0.5, 10e-6, 1e-6, 10.0
 ALPHA = R / (2 * L)
@@ -192,3 +195,89 @@ def test_envelope_patterns_are_named() -> None:
     assert any(f.startswith("decay rate from the first half") for f in loss.findings)
     few = diagnose_envelope(t[:2], clean[:2], sig[:2])
     assert few.pattern == "too_few" and few.flagged == []
+
+
+def rounded_table(folder, seed: int, n: int = 12) -> tuple:
+    """A seeded cursor table of the module's ring written as text: times in ms to three
+    decimals (1 us, a tenth of the 9.97 us half period) after a random cursor origin,
+    values to 0.01 V after 10 mV of reading noise; read back with read_peaks."""
+    rng = np.random.default_rng(seed)
+    t, v = readings(n, noise=0.01, seed=seed, origin=rng.uniform(0.0, 20e-6))
+    path = folder / f"rounded_{seed}.csv"
+    rows = "\n".join(f"{a * 1e3:.3f},{b:.2f}" for a, b in zip(t, v))
+    path.write_text("time [ms],value [V]\n" + rows + "\n", encoding="ascii")
+    return read_peaks(path), np.arange(n)
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_rounded_cursor_times_are_not_overconfident(tmp_path, seed: int) -> None:
+    table, k = rounded_table(tmp_path, seed)
+    # The reading resolution as written: the last digit's step (common practice).
+    assert table.time_resolution == pytest.approx(1e-6, rel=1e-9)
+    assert table.voltage_resolution == pytest.approx(0.01, rel=1e-9)
+    est = estimate_from_peaks(
+        table.time,
+        table.voltage,
+        time_resolution=table.time_resolution,
+        voltage_resolution=table.voltage_resolution,
+    )
+    # What the rounding implies on its own: times erring independently and uniformly
+    # over one step (sd = step / sqrt(12), common practice) give the half period h a
+    # standard error sd / sqrt(sum (k - mean k)^2) (slope of a simple linear
+    # regression, e.g. Montgomery & Runger, ch. 11), and f_d = 1 / (2 h) the same
+    # relative error.
+    h = math.pi / OMEGA
+    implied = FREQ * (1e-6 / math.sqrt(12.0)) / (h * math.sqrt(np.sum((k - k.mean()) ** 2)))
+    assert est.damped_frequency.stderr >= implied
+    # The truth within 3 standard errors (about 99.7 % for a normal error; over 200
+    # seeds of this table the largest deviations seen were 1.8 standard errors for f_d
+    # and 2.5 for alpha, root-mean-square 1.04 and 1.03).
+    assert within(est, "damped_frequency", FREQ)
+    assert within(est, "neper_frequency", ALPHA)
+    # The rounding errors of an equally spaced lattice drift together (9.97 us is
+    # 0.034 us short of ten steps), so the times can lie closer to a line than rounding
+    # allows, or err together. Without the floor, these seeds' estimates miss the truth
+    # by more than 3 of their standard errors (by 3.6 for seed 0, by 4e7 for seeds 1
+    # and 2, whose times fall on an exact 10 us lattice): the check above can fail.
+    bare = estimate_from_peaks(table.time, table.voltage, time_resolution=0.0)
+    assert not within(bare, "damped_frequency", FREQ)
+    # Without stated resolutions the estimator infers them from the numbers; a column
+    # whose every entry ends in a written 0 then looks ten times coarser, so the
+    # inferred error is never smaller.
+    inferred = estimate_from_peaks(table.time, table.voltage)
+    assert inferred.damped_frequency.stderr >= 0.999 * est.damped_frequency.stderr
+
+
+def test_reading_resolution_is_the_last_written_digit(tmp_path) -> None:
+    # Common practice, no source: a number written to d decimals was rounded to 10^-d
+    # of its unit; a trailing zero counts, as does a unit prefix or exponent.
+    path = tmp_path / "cursor.csv"
+    path.write_text(
+        "time [ms],value [mV]\n0,1200\n0.50,-890.5\n1.00,660\n1.5e0,-492\n", encoding="ascii"
+    )
+    table = read_peaks(path)
+    assert table.time_resolution == pytest.approx(1e-5, rel=1e-9)  # "0.50" ms
+    assert table.voltage_resolution == pytest.approx(1e-4, rel=1e-9)  # "-890.5" mV
+    path.write_text("time,value\n0,12\n0.5m,-8.9\n1.0m,6.62\n", encoding="ascii")
+    table = read_peaks(path)
+    assert table.time_resolution == pytest.approx(1e-4, rel=1e-9)  # "0.5m" s
+    assert table.voltage_resolution == pytest.approx(0.01, rel=1e-9)  # "6.62" V
+    # From numbers alone (no text): the coarsest power of ten they are all multiples of.
+    assert decimal_resolution(np.array([0.0, 5e-4, 1e-3, 1.5e-3])) == pytest.approx(1e-4)
+    assert decimal_resolution(np.array([12.0, -8.92, 6.6])) == pytest.approx(0.01)
+    assert decimal_resolution(np.array([math.pi, math.e])) is None  # full precision
+
+
+def test_comparison_time_sigma_honours_the_rounding() -> None:
+    # A 1010 Hz ring read at 0.1 ms: half period 0.49505 ms, every time rounds onto an
+    # exact 0.5 ms lattice, so the times scatter not at all about equal spacing.
+    h = 0.5 / 1010.0
+    k = np.arange(8)
+    time = np.round(k * h / 1e-4) * 1e-4
+    assert np.allclose(np.diff(time), 5e-4, rtol=0, atol=1e-15)
+    sigma = _time_scatter(time, 1e-3)
+    assert sigma >= 1e-4 / math.sqrt(12.0)  # uniform rounding error (common practice)
+    # The half period a straight-line fit gives (0.5 ms), against the truth, within 3
+    # of its standard errors sigma / sqrt(sum (k - mean k)^2) (simple linear regression).
+    slope_se = sigma / math.sqrt(np.sum((k - k.mean()) ** 2))
+    assert abs(5e-4 - h) <= 3 * slope_se

@@ -3,10 +3,13 @@
 Before the event the probe sees a slowly drifting level: the charged capacitor's voltage
 losing charge through leakage and probe loading (natural response), or the output's
 offset (step). After it the trace swings far from that level. The event is found in
-three steps (see :func:`_detect`): the first sample beyond half the largest swing; the
-start of the unbroken stretch leading up to it in which the trace stays more than
-``THRESHOLD_SIGMA`` noise sigmas from the pre-event line (level + slope, least squares,
-prediction interval included); and a sub-sample refinement of that start.
+steps (see :func:`_detect`): the first sample beyond half the largest swing; the start
+of the unbroken stretch leading up to it in which the trace stays more than
+``THRESHOLD_SIGMA`` noise sigmas from the pre-event line (level, and slope when one is
+clearly there; least squares, prediction interval included), the line being fitted
+to the samples before the trace's first clear move (so that a short pre-trigger is not
+outweighed by the event's first quarter period); and a sub-sample refinement of that
+start.
 
 The departure starts gently: a series RLC loop starts with zero current, so the
 capacitor voltage leaves its level as ``-(omega0**2 * V0 / 2) * t**2`` (zero slope),
@@ -43,6 +46,9 @@ MIN_BASELINE = 8
 ROBUST_SAMPLES = 100_000
 #: The stretch before the event must not bend by more than this many standard errors.
 CURVATURE_T = 6.0
+#: A baseline keeps its slope only when the slope is this many standard errors from
+#: zero; otherwise the level alone is fitted (see :func:`_detect`).
+SLOPE_T = 3.0
 #: Samples right before the event left out of the baseline fit (the onset is gradual).
 GUARD_SAMPLES = 2
 #: The onset fit uses the departure up to this fraction of the largest swing.
@@ -94,7 +100,8 @@ class Alignment:
 
 @dataclass
 class _Line:
-    """Least-squares line through the first ``count`` samples."""
+    """Least-squares line through the first ``count`` samples (``s_tt`` infinite when
+    the slope is held at zero: a level, whose prediction carries no slope error)."""
 
     t_mean: float
     v_mean: float
@@ -128,6 +135,19 @@ def _fit_line(t: np.ndarray, v: np.ndarray, robust: bool = False) -> _Line:
     else:
         sigma = float(math.sqrt(np.dot(residual, residual) / max(t.size - 2, 1)))
     return _Line(t_mean, v_mean, slope, sigma, s_tt if s_tt > 0 else 1.0, t.size)
+
+
+def _level_only(line: _Line, t: np.ndarray, v: np.ndarray) -> _Line:
+    """The same samples described by their mean level alone (slope zero)."""
+    residual = v - line.v_mean
+    sigma = float(math.sqrt(np.dot(residual, residual) / max(t.size - 1, 1)))
+    return _Line(line.t_mean, line.v_mean, 0.0, sigma, math.inf, line.count)
+
+
+def _slope_matters(line: _Line) -> bool:
+    """True when the fitted slope is more than ``SLOPE_T`` standard errors from zero
+    (the t-test on a regression slope; standard error sigma / sqrt(Stt))."""
+    return abs(line.slope) * math.sqrt(line.s_tt) > SLOPE_T * max(line.sigma, np.finfo(float).tiny)
 
 
 def _threshold(count: int) -> float:
@@ -167,9 +187,17 @@ def _robust_line(t: np.ndarray, v: np.ndarray) -> _Line:
     )
     level, slope = fit.x
     sigma = 1.4826 * float(np.median(np.abs(residual(fit.x))))
-    return _Line(
+    line = _Line(
         plain.t_mean, float(level), float(slope), sigma, plain.s_tt * stride, plain.count * stride
     )
+    if _slope_matters(line):
+        return line
+    flat = least_squares(
+        lambda p: v - p[0], [level], jac=lambda p: -np.ones((x.size, 1)),
+        loss="soft_l1", f_scale=scale,
+    )
+    sigma = 1.4826 * float(np.median(np.abs(v - flat.x[0])))
+    return _Line(plain.t_mean, float(flat.x[0]), 0.0, sigma, math.inf, line.count)
 
 
 class _NoEvent(Exception):
@@ -197,13 +225,22 @@ def _detect(trace: Trace, floor: float, step: float) -> tuple[float, int]:
     1. Coarse: the first sample beyond half the largest excursion from the starting
        level (the median of the first samples). Noise, hum and droop before the event
        are far smaller than the response, so this lands on the event's first swing.
-    2. Fine: fit the baseline line over everything before the coarse point (robustly
-       the first time, as the event's start is included), then walk back from the
-       coarse point while the trace stays beyond the threshold on the swing's side:
-       where that stretch begins is the departure.
-    3. Refine the onset below one sample and refit the baseline on everything before
-       it; repeat until the fitted stretch stays the same.
-    4. Check that the stretch just before the onset is straight (no bend): otherwise
+    2. Rough: walk back from the coarse point to where the trace comes within ten
+       noise sigmas of the starting level (:func:`_rough_end`). The half-swing point
+       lies about a quarter period into a ring-down, which can be far more samples
+       than a 5-10 % pre-trigger holds; the rough point lies only a few sigmas in.
+    3. Fine: fit the baseline over everything before the rough point (robustly, as
+       the event's start is included), then walk back from the coarse point while the
+       trace stays beyond the threshold on the swing's side: where that stretch
+       begins is the departure.
+    4. Refine the onset below one sample and refit the baseline on everything before
+       it; repeat until the fitted stretch stays the same. The baseline is a line when
+       its slope is more than ``SLOPE_T`` standard errors from zero on the first such
+       stretch, else a level: extrapolating a slope fitted to a short stretch past its
+       end multiplies its noise (the prediction variance of a line grows with the
+       squared distance from the stretch's middle), and the onset fit looks well past
+       the end.
+    5. Check that the stretch just before the onset is straight (no bend): otherwise
        the baseline has swallowed the start of the event, which happens when the
        record holds too little time before it.
     """
@@ -225,7 +262,12 @@ def _detect(trace: Trace, floor: float, step: float) -> tuple[float, int]:
             f"the trace is already moving within its first {coarse + 1} samples, so there "
             "is no level before the event to start from"
         )
-    line = _robust_line(t[:coarse], v[:coarse])
+    wander = 1.4826 * float(np.median(np.abs(v[: 2 * MIN_BASELINE] - level)))
+    rough = _rough_end(v, level, coarse, 2.0 * THRESHOLD_SIGMA * max(jitter, wander, floor))
+    if rough < MIN_BASELINE + GUARD_SAMPLES:
+        rough = coarse  # the start level drifted past the margin: fall back to the swing
+    line = _robust_line(t[:rough], v[:rough])
+    sloped: bool | None = None
     result = None
     for _ in range(20):
         departure = v[: coarse + 1] - line.predict(t[: coarse + 1])
@@ -248,6 +290,14 @@ def _detect(trace: Trace, floor: float, step: float) -> tuple[float, int]:
         if end < MIN_BASELINE or end == line.count:
             break
         line = _fit_line(t[:end], v[:end])
+        if sloped is None:
+            # Decided once, on the first stretch that ends at a fitted onset (the
+            # longest clean one): deciding again on each shorter stretch lets a slope
+            # that noise made look real pull the onset earlier, which shortens the
+            # stretch and steepens the slope further.
+            sloped = _slope_matters(line)
+        if not sloped:
+            line = _level_only(line, t[:end], v[:end])
     end = int(np.searchsorted(t, result[0] - GUARD_SAMPLES * step)) if result else 0
     if result is None or end < MIN_BASELINE:
         raise _NoEvent(
@@ -262,6 +312,25 @@ def _detect(trace: Trace, floor: float, step: float) -> tuple[float, int]:
             "before it (too little time before the event, or a slow start)"
         )
     return result
+
+
+def _rough_end(v: np.ndarray, level: float, coarse: int, margin: float) -> int:
+    """End (exclusive) of the window for the first baseline fit: one past the last
+    sample before ``coarse`` that lies within ``margin`` of the starting ``level`` on
+    the swing's side.
+
+    The half-swing point lies about a quarter period into a ring-down; a baseline
+    fitted up to it would hold that much of the event, which outweighs a short
+    pre-trigger (a robust fit tolerates a minority of outliers, not a majority).
+    Walking back from ``coarse`` through the unbroken departure stops where the trace
+    comes back within ``margin`` of the level, a few noise sigmas into the event, so
+    the window holds only the event's small, early part. Noise before the event
+    cannot lengthen the walk (it stops at the first sample inside the margin); a droop
+    towards the swing can only shorten the window.
+    """
+    side = np.sign(v[coarse] - level)
+    inside = np.flatnonzero(side * (v[:coarse] - level) <= margin)
+    return int(inside[-1]) + 1 if inside.size else 0
 
 
 def _onset(

@@ -19,6 +19,7 @@ from xcheck.align import Alignment, align_trace
 from xcheck.fit import Observation
 from xcheck.fixture import Fixture
 from xcheck.ringdown import RingdownEstimate, estimate_from_peaks, estimate_ringdown
+from xcheck.ringdown.peaks import decimal_resolution, rounded_time_sigma
 from xcheck.trace import read_peaks, read_trace
 from xcheck.values import format_eng
 
@@ -85,6 +86,7 @@ class Measured:
     alignment: Alignment | None
     findings: tuple[str, ...]
     notes: tuple[str, ...] = ()
+    time_resolution: float | None = None
 
     @property
     def damped_frequency_hz(self):
@@ -108,7 +110,8 @@ class Measured:
             sigma = (self.uncertainty if self.uncertainty is not None
                      else np.full(self.voltage.shape, self.estimate.noise_sigma))
             return Observation("peaks", self.time, self.voltage, sigma, float(self.time.size),
-                               period, time_sigma=_time_scatter(self.time, period))
+                               period, time_sigma=_time_scatter(self.time, period,
+                                                             self.time_resolution))
         alpha = max(self.estimate.neper_frequency.value, 0.0)
         end = self.time[-1]
         if alpha > 0:
@@ -171,14 +174,21 @@ def _pair(estimate) -> dict[str, float | None]:
             "crb": _finite(crb) if crb is not None else None}
 
 
-def _time_scatter(time: np.ndarray, period: float) -> float:
-    """Scatter (s) of extremum times about equal half-period spacing."""
+def _time_scatter(time: np.ndarray, period: float, resolution: float | None = None) -> float:
+    """Standard deviation (s) of extremum times: their scatter about equal half-period
+    spacing, but no less than rounding them to their last written digit leaves (see
+    :func:`xcheck.ringdown.peaks.rounded_time_sigma`) nor 1e-4 period. Times rounded
+    coarsely can fall on an exact lattice and scatter not at all. ``resolution`` is the
+    reading step as written in the file (s); None works it out from the numbers."""
     k = np.rint((time - time[0]) / (period / 2))
+    if resolution is None:
+        resolution = decimal_resolution(time) or 0.0
+    rounding, _ = rounded_time_sigma(time, k, resolution)
     if time.size < 4:
-        return period * 1e-3
+        return max(period * 1e-3, rounding)
     coeffs = np.polyfit(k, time, 1)
     residual = time - np.polyval(coeffs, k)
-    return max(float(np.std(residual, ddof=2)), period * 1e-4)
+    return max(float(np.std(residual, ddof=2)), period * 1e-4, rounding)
 
 
 def _expected_sign(fixture: Fixture) -> int | None:
@@ -217,10 +227,13 @@ def measure(
     """
     if peaks is not None:
         table = read_peaks(peaks)
-        estimate = estimate_from_peaks(table.time, table.voltage, table.uncertainty)
+        estimate = estimate_from_peaks(table.time, table.voltage, table.uncertainty,
+                                       time_resolution=table.time_resolution,
+                                       voltage_resolution=table.voltage_resolution)
         return Measured("peaks", str(peaks), table.time - table.time[0], table.voltage,
                         np.zeros(table.time.size, bool), table.uncertainty, estimate, None,
-                        _envelope_findings(estimate), tuple(estimate.envelope.findings))
+                        _envelope_findings(estimate), tuple(estimate.envelope.findings),
+                        table.time_resolution)
     raw = read_trace(trace, column=column)
     aligned, alignment = align_trace(raw, event_time=event_time, expect=fixture.response,
                                      expected_sign=_expected_sign(fixture))

@@ -37,6 +37,7 @@ naming the line or column, the bad value, and how to fix it.
 from __future__ import annotations
 
 import math
+import re
 import zlib
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
@@ -165,12 +166,16 @@ class PeakTable:
     """Extrema read off scope cursors: time (s), voltage (V), optional uncertainty (V).
 
     The time origin is arbitrary (the event, the trigger, or wherever the cursor was).
+    ``time_resolution`` and ``voltage_resolution`` are the steps of the last digit the
+    columns were written with (s, V; the finest over the rows), or None when unknown.
     """
 
     time: np.ndarray
     voltage: np.ndarray
     uncertainty: np.ndarray | None
     source: str
+    time_resolution: float | None = None
+    voltage_resolution: float | None = None
 
     def __post_init__(self) -> None:
         for name in ("time", "voltage", "uncertainty"):
@@ -785,6 +790,7 @@ def read_peaks(path: str | Path) -> PeakTable:
             )
         scales.append(scale)
     values = np.full((len(rows), len(header)), np.nan)
+    written = np.full((len(rows), 2), np.inf)  # last-digit step of time and voltage
     for r, line in enumerate(rows):
         fields = split(line.text, delimiter)
         if len(fields) != len(header):
@@ -799,6 +805,8 @@ def read_peaks(path: str | Path) -> PeakTable:
                 problems.append(f"line {line.number}, {roles[i]} column {header[i]!r}: {value}")
             else:
                 values[r, i] = value
+                if i < 2:
+                    written[r, i] = _written_step(text, value, scales[i], decimal_comma)
     if problems:
         raise TraceError(src.name, problems)
     if len(rows) < MIN_PEAKS:
@@ -826,7 +834,36 @@ def read_peaks(path: str | Path) -> PeakTable:
             )
     if problems:
         raise TraceError(src.name, problems)
-    return PeakTable(time=time, voltage=volts, uncertainty=uncertainty, source=src.name)
+    finest = [float(np.min(written[:, i])) for i in (0, 1)]
+    return PeakTable(
+        time=time,
+        voltage=volts,
+        uncertainty=uncertainty,
+        source=src.name,
+        time_resolution=finest[0] if math.isfinite(finest[0]) else None,
+        voltage_resolution=finest[1] if math.isfinite(finest[1]) else None,
+    )
+
+
+def _written_step(text: str, value: float, scale: float | None, decimal_comma: bool) -> float:
+    """SI step of the last digit of one cell as written ("0.50" ms: 1e-5 s), or inf when
+    it cannot be told (a zero written with a unit suffix)."""
+    number = text.replace(",", ".") if decimal_comma else text
+    match = _MANTISSA_RE.match(number)
+    if match is None or not (match.group(1) or match.group(2)):
+        return math.inf
+    places = len(match.group(2) or "")
+    exponent = int(match.group(3) or 0)
+    if scale is None:  # a suffix or none: the cell's own multiplier
+        mantissa = float(match.group(0))
+        if mantissa == 0:
+            return math.inf
+        scale = value / mantissa
+    return abs(scale) * 10.0 ** (exponent - places)
+
+
+#: Sign, integer digits, decimals and exponent at the start of a cell.
+_MANTISSA_RE = re.compile(r"\s*[+-]?(\d*)(?:\.(\d*))?(?:[eE]([+-]?\d+))?")
 
 
 def _peak_value(text: str, scale: float | None, si_unit: str, decimal_comma: bool) -> float | str:

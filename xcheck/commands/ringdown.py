@@ -142,7 +142,8 @@ def run(args: argparse.Namespace) -> int:
 
         table = read_peaks(args.trace)
         estimate = estimate_from_peaks(
-            table.time, table.voltage, table.uncertainty, source=table.source
+            table.time, table.voltage, table.uncertainty, source=table.source,
+            time_resolution=table.time_resolution, voltage_resolution=table.voltage_resolution,
         )
         measured = (np.asarray(table.time), np.asarray(table.voltage), None)
         context.append(f"peak table {table.source}: {len(table)} extrema")

@@ -14,7 +14,19 @@ docstring above). So the readings are fitted jointly:
 by weighted least squares (scipy.optimize.least_squares), each block weighted by its
 standard deviation: the given reading uncertainties for the values, the scatter of the
 times about a straight line for the times (cursor time readings carry no stated
-uncertainty). Where a standard deviation is estimated from the residuals of few points,
+uncertainty). Neither is taken below the rounding of the numbers as written: a reading
+rounded to a step ``r`` errs by up to ``r / 2``, uniformly, so by ``r / sqrt(12)``
+standard deviation (the usual model of rounding, common practice).
+
+Rounded times of an equally spaced lattice do not err independently: times read at
+0.1 ms off a ring whose half period is 0.495 ms all fall on an exact 0.5 ms lattice,
+their rounding errors growing by 0.005 ms a reading, and they scatter not at all about
+a line. So the half periods consistent with every time to within half a step are
+found as well (two linear programs, scipy.optimize.linprog; the readings are then
+interval-censored, and any lattice through all the intervals is as good as another),
+and the half period's standard error is taken as at least that range's width /
+sqrt(12) (a uniform distribution over it). Where a standard deviation is estimated
+from the residuals of few points,
 the standard errors are multiplied by the Student t quantile at the one-sigma coverage
 (0.8413) for those degrees of freedom (the coverage-factor practice of the ISO Guide to
 the Expression of Uncertainty in Measurement, from memory), so that +-1 stderr keeps its
@@ -30,7 +42,7 @@ from dataclasses import replace
 
 import numpy as np
 from scipy import stats
-from scipy.optimize import least_squares
+from scipy.optimize import least_squares, linprog
 
 from xcheck.errors import TraceError
 from xcheck.ringdown.envelope import diagnose_envelope
@@ -47,6 +59,45 @@ from xcheck.ringdown.result import (
 ONE_SIGMA = 0.8413447460685429
 #: Largest alpha * |t0| accepted: the model is extrapolated to t = 0 by exp(alpha t0).
 MAX_EXTRAPOLATION = 50.0
+#: Decimal resolution is sought down to this many significant digits of the largest
+#: value; finer than that, float rounding blurs the grid and the reading error is
+#: negligible anyway.
+RESOLUTION_DIGITS = 9
+
+
+def decimal_resolution(values: np.ndarray) -> float | None:
+    """The reading resolution of numbers written in decimal: the coarsest power of ten
+    of which every value is a whole multiple.
+
+    Parameters
+    ----------
+    values
+        Readings in SI units, as converted from text (a decimal unit prefix keeps the
+        grid decimal: 0.5 ms is 5e-4 s).
+
+    Returns
+    -------
+    float or None
+        The step (same unit), e.g. 1e-4 for times written to 0.1 ms. None when no value
+        is finite and non-zero, or the values carry more than
+        :data:`RESOLUTION_DIGITS` significant digits (full-precision numbers).
+
+    Notes
+    -----
+    Trailing zeros are invisible here ("0.50" reads as 0.5), so a column whose every
+    entry ends in a written zero gets a step ten times too coarse; the text itself
+    (:attr:`xcheck.trace.PeakTable.time_resolution`) tells them apart.
+    """
+    x = np.asarray(values, dtype=float).ravel()
+    x = np.abs(x[np.isfinite(x) & (x != 0)])
+    if x.size == 0:
+        return None
+    top = math.floor(math.log10(float(x.max())))
+    for exponent in range(top, top - RESOLUTION_DIGITS, -1):
+        q = x / 10.0**exponent
+        if np.all(np.abs(q - np.round(q)) <= np.maximum(1e-6, 1e-12 * q)):
+            return 10.0**exponent
+    return None
 
 
 def estimate_from_peaks(
@@ -56,6 +107,8 @@ def estimate_from_peaks(
     *,
     source: str = "peak table",
     fit_offset: bool | None = None,
+    time_resolution: float | None = None,
+    voltage_resolution: float | None = None,
 ) -> RingdownEstimate:
     """Estimate frequency, decay and amplitude from extrema readings.
 
@@ -73,6 +126,12 @@ def estimate_from_peaks(
         Fit the level the ringing settles to. Default: yes when the readings alternate
         and there are at least 4, or they do not alternate and there are at least 5;
         otherwise the offset is held at 0 V.
+    time_resolution, voltage_resolution
+        Step of the last digit the times (s) and values (V) were written with
+        (:attr:`xcheck.trace.PeakTable.time_resolution` gives it from the text).
+        Default: inferred from the numbers (:func:`decimal_resolution`); 0 turns the
+        floor off. Their rounding, ``resolution / sqrt(12)`` standard deviation, is the
+        least error the times and values are taken to carry.
 
     Returns
     -------
@@ -88,6 +147,7 @@ def estimate_from_peaks(
     """
     t, v, u = _validated(time, voltage, uncertainty, source)
     k, alternating = _lattice(t, v, source)
+    resolution = _rounding(t, v, time_resolution, voltage_resolution, source)
     n = len(t)
     if fit_offset is None:
         fit_offset = n >= (4 if alternating else 5)
@@ -117,7 +177,9 @@ def estimate_from_peaks(
         t, amplitude, u if u is not None else np.ones(n), relative=u is None, kind="peaks"
     )
     every = np.ones(n, dtype=bool)
-    main = _estimate(t, v, u, k, every, start, fit_offset, alternating, notes, envelope, source)
+    main = _estimate(
+        t, v, u, k, every, start, fit_offset, alternating, notes, envelope, source, resolution
+    )
     if not envelope.flagged or n - len(envelope.flagged) < 3:
         return main
     kept = every.copy()
@@ -134,6 +196,7 @@ def estimate_from_peaks(
         notes + [f"readings {envelope.flagged} left out"],
         envelope,
         source,
+        resolution,
     )
     if envelope.pattern == "isolated":
         return replace(
@@ -188,6 +251,91 @@ def _validated(
     if problems:
         raise TraceError(source, problems)
     return t, v, u
+
+
+def _rounding(
+    t: np.ndarray,
+    v: np.ndarray,
+    time_resolution: float | None,
+    voltage_resolution: float | None,
+    source: str,
+) -> tuple[float, float]:
+    """Reading resolutions (s, V) of the times and values, 0 when none."""
+    problems = [
+        f"the {name} resolution is {value!r}; give a step >= 0 (0: no floor) or None"
+        for name, value in (("time", time_resolution), ("voltage", voltage_resolution))
+        if value is not None and not (math.isfinite(value) and value >= 0)
+    ]
+    if problems:
+        raise TraceError(source, problems)
+    if time_resolution is None:
+        time_resolution = decimal_resolution(t) or 0.0
+    if voltage_resolution is None:
+        voltage_resolution = decimal_resolution(v) or 0.0
+    return float(time_resolution), float(voltage_resolution)
+
+
+def rounded_time_sigma(
+    time: np.ndarray, k: np.ndarray, resolution: float
+) -> tuple[float, tuple[float, float] | None]:
+    """Least standard deviation to give each extremum time, read to ``resolution``.
+
+    Parameters
+    ----------
+    time
+        Extremum times (s) as read.
+    k
+        Half-period count of each (whole numbers, increasing).
+    resolution
+        Step of the last written digit of the times (s); 0 for none.
+
+    Returns
+    -------
+    (float, tuple or None)
+        The standard deviation (s): ``resolution / sqrt(12)``, raised when the times
+        fit a range of equally spaced lattices wider than that implies, to the value
+        that gives a straight-line fit of time against ``k`` a slope (half period)
+        standard error of that range's width / sqrt(12). And the range (smallest and
+        largest half period, s) when it set the value, else None.
+    """
+    if not resolution > 0:
+        return 0.0, None
+    sigma = resolution / math.sqrt(12.0)
+    kf = np.asarray(k, dtype=float)
+    if kf.size < 3:
+        return sigma, None
+    span = _half_period_range(np.asarray(time, dtype=float), kf, resolution)
+    if span is None:
+        return sigma, None
+    # Simple linear regression: slope standard error = sigma / sqrt(sum (k - mean)^2).
+    spread = math.sqrt(float(np.sum((kf - kf.mean()) ** 2)))
+    from_span = (span[1] - span[0]) / math.sqrt(12.0) * spread
+    return (from_span, span) if from_span > sigma else (sigma, None)
+
+
+def _half_period_range(
+    t: np.ndarray, k: np.ndarray, resolution: float
+) -> tuple[float, float] | None:
+    """Smallest and largest half period ``h`` (s) for which some ``t0`` puts every
+    ``t0 + k h`` within ``resolution / 2`` of its reading; None when no lattice does
+    (the times err by more than their rounding).
+
+    Two linear programs in units of the resolution (scipy.optimize.linprog, HiGHS):
+    minimise and maximise ``h`` subject to ``|t0 + k h - t_k| <= 1/2``.
+    """
+    x = (t - t[0]) / resolution
+    kf = k.astype(float)
+    rows = np.column_stack((np.ones_like(kf), kf))
+    a_ub = np.vstack((rows, -rows))
+    b_ub = np.concatenate((x + 0.5, 0.5 - x))
+    bounds = [(None, None), (None, None)]
+    ends = []
+    for sign in (1.0, -1.0):
+        found = linprog([0.0, sign], A_ub=a_ub, b_ub=b_ub, bounds=bounds, method="highs")
+        if found.status != 0:
+            return None
+        ends.append(float(found.x[1]) * resolution)
+    return ends[0], max(ends[1], ends[0])
 
 
 def _lattice(t: np.ndarray, v: np.ndarray, source: str) -> tuple[np.ndarray, bool]:
@@ -287,8 +435,13 @@ def _estimate(
     notes: list[str],
     envelope: EnvelopeDiagnostics,
     source: str,
+    resolution: tuple[float, float] = (0.0, 0.0),
 ) -> RingdownEstimate:
-    """Joint weighted fit of the readings in ``use``; covariance; transform to the model."""
+    """Joint weighted fit of the readings in ``use``; covariance; transform to the model.
+
+    ``resolution`` holds the reading resolutions (s, V) of the times and values as
+    written; their rounding sets floors on the time scatter and the value uncertainties.
+    """
     notes = list(notes)
     tt, vv, kk = t[use], v[use], k[use]
     uu = None if u is None else u[use]
@@ -302,7 +455,24 @@ def _estimate(
     p[0], p[1] = t0, h
     dof_t = n - 2
     s_t = math.sqrt(float(np.sum((tt - (t0 + kk * h)) ** 2)) / dof_t)
-    s_t = max(s_t, 1e-9 * abs(h))
+    res_t, res_v = resolution
+    root12 = math.sqrt(12.0)
+    round_v = res_v / root12
+    round_t, span = rounded_time_sigma(tt, kk, res_t)
+    if round_t > s_t:
+        notes.append(
+            f"the times lie within {s_t:.3g} s (rms) of equal spacing, closer than rounding "
+            f"them to their last written digit ({res_t:.3g} s) allows; their standard "
+            f"deviation is taken as {round_t:.3g} s"
+            + (
+                f" (equally spaced lattices through every time to within half that step "
+                f"have half periods from {span[0]:.6g} s to {span[1]:.6g} s: the half "
+                "period's standard error is taken as that width / sqrt(12))"
+                if span is not None
+                else f" ({res_t:.3g} s / sqrt(12))"
+            )
+        )
+    s_t = max(s_t, round_t, 1e-9 * abs(h))
 
     value_free = [i for i in free if i >= 2]
 
@@ -314,9 +484,17 @@ def _estimate(
     dof_v = n - n_values
     if uu is None:
         pre = least_squares(value_resid, p[value_free], x_scale="jac", method="lm")
-        s_v = np.full(n, max(math.sqrt(2.0 * pre.cost / max(dof_v, 1)), 1e-12 * np.max(np.abs(vv))))
+        scatter = math.sqrt(2.0 * pre.cost / max(dof_v, 1))
+        s_v = np.full(n, max(scatter, round_v, 1e-12 * np.max(np.abs(vv))))
+        floored = round_v > scatter
     else:
-        s_v = uu.copy()
+        s_v = np.maximum(uu, round_v)
+        floored = bool(np.any(uu < round_v))
+    if floored:
+        notes.append(
+            "the values are taken to err by at least the rounding of their last written "
+            f"digit ({round_v * math.sqrt(12.0):.3g} V / sqrt(12) = {round_v:.3g} V)"
+        )
 
     def joint(q: np.ndarray) -> np.ndarray:
         full = p.copy()
