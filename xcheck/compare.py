@@ -449,7 +449,11 @@ def _degeneracy_sentences(fixture: Fixture, outcome: CandidateOutcome) -> list[s
                 f"= {group.value:.4g} {group.unit} (± {group.stderr:.2g}), not the values separately"
             )
         else:
-            sentences.append(f"In '{outcome.name}': {group.reason}")
+            sentences.append(
+                f"In '{outcome.name}' {', '.join(names)} trade against each other (correlation "
+                "beyond 0.999): this measurement pins only a combination of them, so each one's "
+                "standard error is large"
+            )
     return sentences
 
 
@@ -495,7 +499,8 @@ def write_verdict(fixture: Fixture, measured: Measured, outcomes: list[Candidate
         parts[-1] += f", NRMSE {best.theory.nrmse:.2%}"
     parts[-1] += "."
     for value in best.fit.fitted:
-        if any(value.label in d.members for d in best.fit.degeneracies):
+        if any(value.label in d.members and d.combination in ("sum", "product")
+               for d in best.fit.degeneracies):
             continue
         parts.append(
             f"Fitted {describe_key(fixture, value.key)} = {format_eng(value.value, value.unit)} ± "

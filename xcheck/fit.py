@@ -206,7 +206,8 @@ def fit_candidate(fixture: Fixture, candidate: Candidate, obs: Observation) -> F
 
 
 def _merge_groups(groups: tuple[Degeneracy, ...]) -> tuple[Degeneracy, ...]:
-    """Join groups that share a member; a sum joined with a sum stays a sum."""
+    """Join groups of the same kind that share a member (a sum joined with a sum stays a
+    sum); a merely correlated pair stays its own entry."""
     merged: list[Degeneracy] = []
     for group in groups:
         members = list(group.members)
@@ -214,7 +215,8 @@ def _merge_groups(groups: tuple[Degeneracy, ...]) -> tuple[Degeneracy, ...]:
         units = {group.unit}
         keep = []
         for other in merged:
-            if set(members) & set(other.members):
+            same_kind = other.combination == group.combination
+            if set(members) & set(other.members) and same_kind:
                 members = list(dict.fromkeys(list(other.members) + members))
                 kinds.add(other.combination)
                 units.add(other.unit)
@@ -228,11 +230,19 @@ def _merge_groups(groups: tuple[Degeneracy, ...]) -> tuple[Degeneracy, ...]:
     return tuple(merged)
 
 
+#: Groups whose determined combination has a physical meaning; only these are collapsed
+#: (one member kept free, the others held). A merely correlated "combination" is
+#: reported but every member stays free: holding one at a poor start value would bias
+#: the rest.
+COLLAPSIBLE = ("sum", "product", "ratio")
+
+
 def _collapse(free: tuple[FreeParameter, ...], groups: tuple[Degeneracy, ...]) -> tuple[FreeParameter, ...]:
-    """Keep the first member of each degenerate group free and fix the others."""
+    """Keep the first member of each collapsible group free and fix the others."""
     fixed = set()
     for group in groups:
-        fixed.update(group.members[1:])
+        if group.combination in COLLAPSIBLE:
+            fixed.update(group.members[1:])
     return tuple(f for f in free if f.label not in fixed)
 
 

@@ -137,6 +137,7 @@ def find_degeneracies(
         basis, _ = np.linalg.qr(extra)
         physical = physical - basis @ (basis.T @ physical)
     member_sets: list[set[int]] = []
+    correlated: list[set[int]] = []  # pairs touching an exact group, reported separately
     for s, row in zip(singular, vt):
         if s > NULL_RATIO * singular[0]:
             continue
@@ -146,15 +147,28 @@ def find_degeneracies(
             continue
         _join(member_sets, members)
     # Nearly equivalent values: not exactly null, but so correlated that the data
-    # cannot apportion them (a standard error many times the value).
-    gram = everything.T @ everything
-    cov = np.linalg.pinv(gram)[: live.size, : live.size]
-    d = np.sqrt(np.clip(np.diag(cov), 1e-300, None))
-    corr = cov / np.outer(d, d)
-    for i in range(live.size):
-        for j in range(i + 1, live.size):
-            if abs(corr[i, j]) > INSEPARABLE_CORRELATION:
-                _join(member_sets, {int(live[i]), int(live[j])})
+    # cannot apportion them (a standard error many times the value). Exact groups are
+    # represented by one member here, so their singular direction cannot fake a
+    # correlation with anything else.
+    exact = [set(m) for m in member_sets]
+    hidden = {m for group in exact for m in sorted(group)[1:]}
+    shown = [k for k, column in enumerate(live) if int(column) not in hidden]
+    if len(shown) >= 2:
+        subset = np.column_stack([normalised[:, shown], extra])
+        cov = np.linalg.pinv(subset.T @ subset)[: len(shown), : len(shown)]
+        d = np.sqrt(np.clip(np.diag(cov), 1e-300, None))
+        corr = cov / np.outer(d, d)
+        for a in range(len(shown)):
+            for b in range(a + 1, len(shown)):
+                if abs(corr[a, b]) > INSEPARABLE_CORRELATION:
+                    pair = {int(live[shown[a]]), int(live[shown[b]])}
+                    index = np.array(sorted(pair))
+                    kind = _classify(physical[:, index], np.asarray(values, float)[index],
+                                     [free[m].unit for m in index])
+                    if kind != "combination" or not any(pair & group for group in exact):
+                        _join(member_sets, pair)
+                    else:
+                        correlated.append(pair)
     for members in member_sets:
         index = np.array(sorted(members))
         units = [free[m].unit for m in index]
@@ -164,6 +178,11 @@ def find_degeneracies(
         found.append(
             Degeneracy(labels, kind, float("nan"), float("nan"), unit, reason_for(kind, labels))
         )
+    for pair in correlated:
+        index = np.array(sorted(pair))
+        labels = tuple(free[m].label for m in index)
+        found.append(Degeneracy(labels, "combination", float("nan"), float("nan"), "",
+                                reason_for("combination", labels)))
     return found
 
 
