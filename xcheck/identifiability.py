@@ -130,7 +130,6 @@ def find_degeneracies(
     extra = np.zeros((jacobian.shape[0], 0)) if nuisance is None else nuisance
     extra_norms = np.linalg.norm(extra, axis=0)
     extra = extra[:, extra_norms > 0] / extra_norms[extra_norms > 0]
-    everything = np.column_stack([normalised, extra])
     physical = jacobian / np.where(scale > 0, scale, 1.0)[None, :]
     if extra.shape[1]:
         # Compare columns only in what the nuisance values cannot absorb.
