@@ -133,3 +133,27 @@ def test_too_short_record_exit_2(tmp_path: Path, capsys: pytest.CaptureFixture[s
     err = " ".join(capsys.readouterr().err.split())
     assert "short.csv" in err and "periods of ringing" in err and "at least 1.5 periods" in err
     assert not (tmp_path / "x.png").exists()
+
+
+def test_files_xcheck_did_not_write_are_never_overwritten(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    scope = write_scope(tmp_path / "scope.csv")
+    precious_json = tmp_path / "notes.json"
+    precious_json.write_text('{"mine": 1}\n', encoding="utf-8")
+    args = ["ringdown", str(scope), "--out", str(tmp_path / "fig.png")]
+    assert main(args + ["--json", str(precious_json)]) == 2
+    assert precious_json.read_text(encoding="utf-8") == '{"mine": 1}\n'
+    assert not (tmp_path / "fig.png").exists()
+    assert "not written by xcheck" in " ".join(capsys.readouterr().err.split())
+    # A PNG that xcheck did not make is left alone too (the Software chunk tells).
+    foreign_png = tmp_path / "photo.png"
+    matplotlib.image.imsave(foreign_png, np.zeros((4, 4, 3)))
+    before = foreign_png.read_bytes()
+    assert main(["ringdown", str(scope), "--out", str(foreign_png)]) == 2
+    assert foreign_png.read_bytes() == before
+    # Its own outputs are replaced as usual.
+    own = ["ringdown", str(scope), "--out", str(tmp_path / "fig.png"),
+           "--json", str(tmp_path / "r.json")]
+    assert main(own) == 0
+    assert main(own) == 0

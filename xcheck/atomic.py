@@ -7,7 +7,41 @@ import tempfile
 from pathlib import Path
 from typing import Callable
 
+from xcheck import __version__
 from xcheck.errors import XcheckError
+
+#: Written into every PNG xcheck makes, so a later run can tell its own files.
+PNG_METADATA = {"Software": f"xcheck {__version__}"}
+
+
+def png_is_ours(path: Path) -> bool:
+    """True when ``path`` is a PNG whose Software text chunk names xcheck."""
+    from PIL import Image  # matplotlib depends on Pillow
+
+    try:
+        with Image.open(path) as image:
+            return str(image.info.get("Software", "")).startswith("xcheck")
+    except (OSError, ValueError):
+        return False
+
+
+def refuse_foreign(path: Path, is_ours: Callable[[Path], bool], option: str = "--out") -> None:
+    """Raise when ``path`` exists and is not an earlier xcheck output; nothing is written.
+
+    Parameters
+    ----------
+    path
+        The file about to be written.
+    is_ours
+        Recognises a file an earlier xcheck run wrote.
+    option
+        The command-line option that chose ``path``, for the message.
+    """
+    if path.exists() and not (path.is_file() and is_ours(path)):
+        raise XcheckError(
+            f"{path}: exists and was not written by xcheck; nothing was written. Choose "
+            f"another {option} or move the file away."
+        )
 
 
 def _umask() -> int:

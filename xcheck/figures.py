@@ -17,6 +17,8 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
+from xcheck.atomic import PNG_METADATA  # noqa: E402
+
 LINE_STYLES = ("-", "--", "-.", ":", (0, (5, 1, 1, 1, 1, 1)), (0, (1, 2)))
 # Distinct in greyscale (luminance steps) and for common colour-vision deficiencies.
 SHADES = ("#1b4f72", "#c0392b", "#7d8f2a", "#6c3483", "#b9770e", "#17202a")
@@ -49,7 +51,7 @@ def _finish(fig: plt.Figure, axis: plt.Axes, path: Path, xlabel: str, ylabel: st
     axis.legend(fontsize=8, frameon=False)
     _style(axis)
     fig.tight_layout()
-    fig.savefig(path)
+    fig.savefig(path, metadata=PNG_METADATA)
     plt.close(fig)
     return path
 
@@ -105,7 +107,7 @@ def residual_figure(path: Path, time: np.ndarray,
         _style(axis)
     axes[-1, 0].set_xlabel(f"time from the event ({prefix}s)")
     fig.tight_layout()
-    fig.savefig(path)
+    fig.savefig(path, metadata=PNG_METADATA)
     plt.close(fig)
     return path
 

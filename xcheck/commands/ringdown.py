@@ -22,7 +22,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from xcheck.atomic import write_atomically
+from xcheck.atomic import PNG_METADATA, png_is_ours, refuse_foreign, write_atomically
 from xcheck.errors import ValueParseError, XcheckError
 from xcheck.ringdown import DerivedCircuit, Estimate, RingdownEstimate, derive_circuit
 from xcheck.ringdown import estimate_from_peaks, estimate_ringdown
@@ -200,6 +200,9 @@ def run(args: argparse.Namespace) -> int:
             inductance_stderr=l_err,
         )
     png = args.out or DEFAULT_ROOT / args.trace.name.split(".")[0] / "ringdown" / PNG_NAME
+    refuse_foreign(png, png_is_ours, "--out")
+    if args.json is not None:
+        refuse_foreign(args.json, _json_is_ours, "--json")
     write_atomically(png, lambda tmp: write_figure(tmp, estimate, *measured, title=str(args.trace)))
     written = [png]
     if args.json is not None:
@@ -450,7 +453,7 @@ def write_figure(
         axis.legend(fontsize=7, frameon=False, loc="upper right")
         axis.tick_params(labelsize=8)
     fig.tight_layout()
-    fig.savefig(path, format="png")
+    fig.savefig(path, format="png", metadata=PNG_METADATA)
     plt.close(fig)
 
 
@@ -468,3 +471,11 @@ def _shown_span(estimate: RingdownEstimate, time: np.ndarray, extrema_time: np.n
             ring = max(ring, math.log(size / estimate.noise_sigma) / alpha * 1.2)
     return min(end, ring)
 
+
+def _json_is_ours(path: Path) -> bool:
+    """True when ``path`` holds an earlier ``xcheck ringdown --json`` result."""
+    try:
+        data = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return False
+    return isinstance(data, dict) and "damped_frequency_hz" in data and "neper_frequency_per_s" in data

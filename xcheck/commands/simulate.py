@@ -26,7 +26,7 @@ import numpy as np
 from xcheck.circuit import Circuit
 from xcheck.engines.ngspice import simulate_ngspice
 from xcheck.engines.theory import SecondOrder, TheoryNotApplicable, characterise, simulate_theory
-from xcheck.atomic import write_atomically
+from xcheck.atomic import PNG_METADATA, png_is_ours, write_atomically
 from xcheck.errors import XcheckError
 from xcheck.expand import build_circuit
 from xcheck.fixture import Fixture
@@ -146,9 +146,9 @@ def _written_by_xcheck(csv_path: Path) -> bool:
 
 def _refuse_foreign(csv_path: Path, png_path: Path) -> None:
     """Replace earlier simulate output only: never a file xcheck did not write."""
-    if not (csv_path.exists() or png_path.exists()):
-        return
-    if csv_path.exists() and _written_by_xcheck(csv_path):
+    csv_ok = not csv_path.exists() or _written_by_xcheck(csv_path)
+    png_ok = not png_path.exists() or png_is_ours(png_path)
+    if csv_ok and png_ok:
         return
     raise XcheckError(
         f"{csv_path.parent}: holds {CSV_NAME} or {PNG_NAME} that an earlier "
@@ -266,7 +266,7 @@ def write_overlay(path: Path, prediction: Prediction, title: str) -> None:
     for row in axes:
         row[0].grid(True, linestyle=":", linewidth=0.6, color="0.75")
     figure.tight_layout()
-    figure.savefig(path, dpi=120, format="png")
+    figure.savefig(path, dpi=120, format="png", metadata=PNG_METADATA)
     plt.close(figure)
 
 
