@@ -32,12 +32,17 @@ found only when something is wrong.
 
 Errors are :class:`~xcheck.errors.TraceError` listing every problem found at once, each
 naming the line or column, the bad value, and how to fix it.
+
+This module owns the data types (:class:`Trace`, :class:`PeakTable`), the two entry
+points and the waveform body reader. Peak tables are parsed in
+:mod:`xcheck.peaks_reader`; clipping and quantisation are found by
+:mod:`xcheck.clipping` (:func:`estimate_resolution`, :func:`detect_clipping` and
+:data:`CLIP_RUN` are re-exported here).
 """
 
 from __future__ import annotations
 
 import math
-import re
 import zlib
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
@@ -50,36 +55,42 @@ import pyarrow as pa
 import pyarrow.compute as pac
 import pyarrow.csv as pacsv
 
+from xcheck.clipping import CLIP_RUN, detect_clipping, estimate_resolution
 from xcheck.csvlayout import (
     HEAD_BYTES,
     NUM_COMMA,
     NUM_DOT,
-    NUM_DOT_RE,
     Column,
     Layout,
     Source,
-    UnitProblem,
-    check_text,
     column_scale,
     columns,
-    head_lines,
-    is_number,
     looks_like_sample_numbers,
     open_source,
     pick_column,
     sniff_layout,
-    split,
-    split_header_field,
-    unit,
 )
 from xcheck.csvmeta import Meta, Stated, read_metadata, record_problems, time_problems
-from xcheck.errors import TraceError, ValueParseError
-from xcheck.values import parse_value
+from xcheck.errors import TraceError
+
+# Public names; the clipping ones are defined in xcheck.clipping and re-exported here.
+__all__ = [
+    "CLIP_RUN",
+    "MAX_EXAMPLES",
+    "MAX_PEAK_ROWS",
+    "MIN_PEAKS",
+    "MIN_SAMPLES",
+    "PeakTable",
+    "Trace",
+    "check_enough_ringing",
+    "detect_clipping",
+    "estimate_resolution",
+    "read_peaks",
+    "read_trace",
+]
 
 #: Fewest rows a waveform may have.
 MIN_SAMPLES = 10
-#: A run of at least this many samples at the record's maximum or minimum is clipping.
-CLIP_RUN = 3
 #: Fewest extrema a peak table may have (two decrements need three extrema).
 MIN_PEAKS = 3
 #: Peak tables longer than this are waveforms, not cursor readings.
@@ -542,79 +553,6 @@ def _row_lines(src: Source, layout: Layout, rows: np.ndarray) -> np.ndarray:
 # --------------------------------------------------------------------------- checks
 
 
-def estimate_resolution(values: np.ndarray) -> float | None:
-    """The quantisation step of ``values`` when they visibly sit on an even grid.
-
-    Parameters
-    ----------
-    values
-        Samples of one channel.
-
-    Returns
-    -------
-    float or None
-        The grid step, or None when values rarely repeat (no grid can be seen) or the
-        gaps between distinct values are not whole multiples of one step.
-    """
-    values = np.asarray(values, dtype=float)
-    sample = values[:: max(1, values.size // 65536)]  # an evenly spread subset is plenty
-    sample = sample[np.isfinite(sample)]
-    distinct = np.unique(sample)
-    if distinct.size < 3 or distinct.size > 0.5 * sample.size:
-        return None
-    gaps = np.diff(distinct)
-    smallest = gaps.min()
-    base = gaps[gaps < 1.5 * smallest].mean()
-    ratios = gaps / base
-    if np.any(np.abs(ratios - np.round(ratios)) > 0.2):
-        return None
-    return float((distinct[-1] - distinct[0]) / np.round(ratios).sum())
-
-
-def detect_clipping(
-    values: np.ndarray,
-    resolution: float | None = None,
-    *,
-    extremes: tuple[float, float] | None = None,
-) -> np.ndarray:
-    """Mask of samples in runs of >= :data:`CLIP_RUN` at the record's maximum or minimum.
-
-    A converter driven past its range returns its top or bottom code for as long as the
-    input stays beyond it, so clipping shows as runs of equal samples at the extremes
-    (common practice, no source). "At the extreme" means within half a quantisation
-    step when the step is known, else within 1e-9 of the record's magnitude.
-
-    Parameters
-    ----------
-    values
-        Samples of one channel.
-    resolution
-        Quantisation step, if known (see :func:`estimate_resolution`).
-    extremes
-        ``(max, min)`` of ``values`` when already known (saves two passes).
-
-    Returns
-    -------
-    numpy.ndarray
-        Boolean mask, True for clipped samples.
-    """
-    values = np.asarray(values, dtype=float)
-    mask = np.zeros(values.shape, dtype=bool)
-    if values.size < CLIP_RUN:
-        return mask
-    top, bottom = extremes if extremes is not None else (float(values.max()), float(values.min()))
-    scale = max(abs(top), abs(bottom), top - bottom)
-    tol = 0.5 * resolution if resolution else 1e-9 * scale
-    for at_rail in (values >= top - tol, values <= bottom + tol):
-        index = np.flatnonzero(at_rail)
-        if index.size < CLIP_RUN:
-            continue
-        run_id = np.concatenate(([0], np.cumsum(np.diff(index) != 1)))
-        lengths = np.bincount(run_id)
-        mask[index[lengths[run_id] >= CLIP_RUN]] = True
-    return mask
-
-
 def _increasing_problems(
     src: Source, layout: Layout, time: np.ndarray, label: str, unit: str = " s"
 ) -> list[str]:
@@ -734,153 +672,7 @@ def read_peaks(path: str | Path) -> PeakTable:
         values (line and column named), times not strictly increasing, non-positive
         uncertainties.
     """
-    src = open_source(path, HEAD_BYTES)
-    check_text(src)
-    if not src.complete:
-        raise TraceError(
-            src.name,
-            [
-                "this is too long for a peak table (read off cursors, a few dozen rows); "
-                "read a waveform file with read_trace instead"
-            ],
-        )
-    lines = [
-        line for line in head_lines(src)
-        if line.text.strip() and not line.text.lstrip().startswith("#")
-    ]
-    if not lines:
-        raise TraceError(src.name, ["the file has no rows; write a header and one row per extremum"])
-    header_line, rows = lines[0], lines[1:]
-    delimiter = next((d for d in (";", "\t", ",") if d in header_line.text), None)
-    header = split(header_line.text, delimiter)
-    decimal_comma = delimiter in (";", "\t")
-    if delimiter is None or len(header) not in (2, 3) or any(is_number(h, False) for h in header):
-        raise TraceError(
-            src.name,
-            [
-                f"line {header_line.number} must be a header naming two or three columns "
-                "(time, voltage, optional uncertainty) separated by commas, semicolons or "
-                f"tabs, such as 'time [ms],value [mV]'; it reads {header_line.text[:80]!r}"
-            ],
-        )
-    if len(rows) > MAX_PEAK_ROWS:
-        raise TraceError(src.name, [f"{len(rows)} rows is too long for a peak table; use read_trace"])
-    problems: list[str] = []
-    roles = ("time", "voltage", "uncertainty")
-    expected_units = ("s", "V", "V")
-    scales: list[float | None] = []
-    for i, text in enumerate(header):
-        _name, unit_text = split_header_field(text)
-        if unit_text is None and i == 2:
-            scales.append(scales[1] if scales[1] is not None else None)
-            continue
-        if unit_text is None:
-            scales.append(None)
-            continue
-        try:
-            dimension, scale = unit(unit_text)
-        except UnitProblem as exc:
-            problems.append(f"line {header_line.number}, the {roles[i]} column {text!r}: {exc}")
-            scales.append(1.0)
-            continue
-        if dimension != expected_units[i]:
-            problems.append(
-                f"line {header_line.number}: the {roles[i]} column {text!r} must be in "
-                f"{'a time' if expected_units[i] == 's' else 'a voltage'} unit"
-            )
-        scales.append(scale)
-    values = np.full((len(rows), len(header)), np.nan)
-    written = np.full((len(rows), 2), np.inf)  # last-digit step of time and voltage
-    for r, line in enumerate(rows):
-        fields = split(line.text, delimiter)
-        if len(fields) != len(header):
-            problems.append(
-                f"line {line.number} has {len(fields)} fields, the header {len(header)}; "
-                "write one extremum per row"
-            )
-            continue
-        for i, text in enumerate(fields):
-            value = _peak_value(text, scales[i], expected_units[i], decimal_comma)
-            if isinstance(value, str):
-                problems.append(f"line {line.number}, {roles[i]} column {header[i]!r}: {value}")
-            else:
-                values[r, i] = value
-                if i < 2:
-                    written[r, i] = _written_step(text, value, scales[i], decimal_comma)
-    if problems:
-        raise TraceError(src.name, problems)
-    if len(rows) < MIN_PEAKS:
-        raise TraceError(
-            src.name,
-            [
-                f"{len(rows)} extrema; at least {MIN_PEAKS} are needed to measure a decay "
-                "(read more peaks off the screen)"
-            ],
-        )
-    time, volts = values[:, 0], values[:, 1]
-    steps = np.diff(time)
-    for k in np.flatnonzero(~(steps > 0))[:MAX_EXAMPLES]:
-        problems.append(
-            f"line {rows[k + 1].number}: time {time[k + 1]:.9g} s does not come after "
-            f"{time[k]:.9g} s on line {rows[k].number}; list the extrema in time order, "
-            "each once"
-        )
-    uncertainty = values[:, 2] if len(header) == 3 else None
-    if uncertainty is not None:
-        for k in np.flatnonzero(~(uncertainty > 0))[:MAX_EXAMPLES]:
-            problems.append(
-                f"line {rows[k].number}: the uncertainty must be positive, got "
-                f"{uncertainty[k]:.6g} V"
-            )
-    if problems:
-        raise TraceError(src.name, problems)
-    finest = [float(np.min(written[:, i])) for i in (0, 1)]
-    return PeakTable(
-        time=time,
-        voltage=volts,
-        uncertainty=uncertainty,
-        source=src.name,
-        time_resolution=finest[0] if math.isfinite(finest[0]) else None,
-        voltage_resolution=finest[1] if math.isfinite(finest[1]) else None,
-    )
+    # Imported here: xcheck.peaks_reader imports PeakTable and the limits from this module.
+    from xcheck.peaks_reader import read_peak_table
 
-
-def _written_step(text: str, value: float, scale: float | None, decimal_comma: bool) -> float:
-    """SI step of the last digit of one cell as written ("0.50" ms: 1e-5 s), or inf when
-    it cannot be told (a zero written with a unit suffix)."""
-    number = text.replace(",", ".") if decimal_comma else text
-    match = _MANTISSA_RE.match(number)
-    if match is None or not (match.group(1) or match.group(2)):
-        return math.inf
-    places = len(match.group(2) or "")
-    exponent = int(match.group(3) or 0)
-    if scale is None:  # a suffix or none: the cell's own multiplier
-        mantissa = float(match.group(0))
-        if mantissa == 0:
-            return math.inf
-        scale = value / mantissa
-    return abs(scale) * 10.0 ** (exponent - places)
-
-
-#: Sign, integer digits, decimals and exponent at the start of a cell.
-_MANTISSA_RE = re.compile(r"\s*[+-]?(\d*)(?:\.(\d*))?(?:[eE]([+-]?\d+))?")
-
-
-def _peak_value(text: str, scale: float | None, si_unit: str, decimal_comma: bool) -> float | str:
-    """The SI value of one cell, or a message saying why it cannot be read."""
-    number = text.replace(",", ".") if decimal_comma else text
-    if scale is not None:
-        if not NUM_DOT_RE.match(number):
-            return (
-                f"{text!r} is not a plain number; the header gives the unit, so write the "
-                "number alone (or drop the unit from the header and write e.g. '2.5m')"
-            )
-        value = float(number) * scale
-    else:
-        try:
-            value = parse_value(number, unit=si_unit)
-        except ValueParseError as exc:
-            return f"{exc}"
-    if not math.isfinite(value):
-        return f"{text!r} is not a finite number"
-    return value
+    return read_peak_table(path)
