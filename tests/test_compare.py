@@ -175,3 +175,42 @@ def test_losses_above_what_the_ringing_shows_are_reported_as_such(tmp_path, loss
     # Fitted correction: 0.6 - 1.025 = -0.425 ohm, within 3 standard errors.
     assert abs(extra.value + 0.425) < 3 * extra.stderr
     assert "MORE than the ringing shows" in result.verdict
+
+
+def _step_capture(seed: int):
+    """The invented LC-filter example's true step event: stated losses (switch 10 mOhm,
+    cable 20 mOhm, DCR 15 mOhm, ESR 30 mOhm, source 50 mOhm) plus 80 mOhm unexplained."""
+    from xcheck.synth import ScopeCapture
+
+    return ScopeCapture(resistance=0.125 + 0.08, inductance=10.3e-6, capacitance=100e-6,
+                        esr=0.03, initial_volts=0.0, step_volts=24.0, sample_interval=0.2e-6,
+                        pre_event=50e-6, duration=1.5e-3, noise_volts=0.05, bits=8,
+                        full_scale=(-5.0, 45.0), seed=seed)
+
+
+def test_step_response_hidden_loss_from_trace_and_from_peaks(tmp_path):
+    from pathlib import Path
+
+    from xcheck.synth import capture_trace, peak_table, write_capture_csv
+
+    fixture = load_fixture(Path(__file__).parent.parent / "examples" / "lc_filter_step.toml")
+    capture = _step_capture(5)
+    trace = write_capture_csv(tmp_path / "step.csv", *capture_trace(capture))
+    result = run_comparison(fixture, trace=trace, use_ngspice=False)
+    extra = {v.label: v for v in result.outcome("extra-loss").fit.fitted}["loop.extra_resistance"]
+    assert result.best.name == "extra-loss"
+    assert abs(extra.value - 0.08) < 3 * extra.stderr
+    # NRMSE is relative to the 24 V step, not to the 0 V start: 8-bit noise gives < 1 %.
+    assert result.best.theory.nrmse < 0.01
+    assert result.outcome("as-measured").ranked.delta_bic > 10
+    # The same event read off cursors: overshoots and undershoots after the step
+    # (the 0 V start is not a turning point a cursor would be put on).
+    table = peak_table(capture, count=9, cursor_volts=0.02, cursor_seconds=5e-8)[1:]
+    lines = ["time [us],value [V],uncertainty [V]"]
+    lines += [f"{t * 1e6:.4f},{v:.3f},0.02" for t, v in table]
+    peaks = tmp_path / "step_peaks.csv"
+    peaks.write_text("\n".join(lines) + "\n", encoding="ascii")
+    from_peaks = run_comparison(fixture, peaks=peaks, use_ngspice=False)
+    extra = {v.label: v for v in from_peaks.outcome("extra-loss").fit.fitted}["loop.extra_resistance"]
+    assert abs(extra.value - 0.08) < 3 * extra.stderr
+    assert from_peaks.outcome("as-measured").ranked.delta_bic > 10

@@ -331,6 +331,13 @@ def _ring_of(obs: Observation, curve: np.ndarray) -> tuple[float, float] | None:
     return est.damped_frequency.value, est.neper_frequency.value
 
 
+def event_size(measured: Measured) -> float:
+    """Size of the event (V) that NRMSE is relative to: the swing from the value at the
+    event to the level the ring settles at (V0 for a ring-down, the step for a step)."""
+    est = measured.estimate
+    return abs(est.initial_volts.value - est.offset.value)
+
+
 def _metrics(engine: str, obs: Observation, curve: np.ndarray | None, fit: FitResult,
              measured: Measured, ring: tuple[float, float] | None) -> EngineMetrics | None:
     """Fit quality of one engine's prediction; ``ring`` is that engine's (f_d, alpha)."""
@@ -357,7 +364,7 @@ def _metrics(engine: str, obs: Observation, curve: np.ndarray | None, fit: FitRe
     if ring is not None:
         f_err = ring[0] - measured.damped_frequency_hz.value
         a_err = ring[1] - measured.neper_frequency_per_s.value
-    amplitude = abs(measured.initial_volts.value) or float(np.max(np.abs(obs.voltage))) or 1.0
+    amplitude = event_size(measured) or float(np.ptp(obs.voltage)) or 1.0
     return EngineMetrics(engine, rmse, rmse / amplitude, float(np.max(np.abs(error))),
                          f_err, a_err, float(aic), float(bic))
 
