@@ -36,6 +36,7 @@ from typing import Mapping
 from xcheck.errors import FixtureError, ValueParseError
 from xcheck.fixture import Fixture
 from xcheck.parameters import (
+    LOOP_EXTRA_RESISTANCE,
     ORIGIN_MEASURED,
     ParameterKey,
     ParameterSet,
@@ -44,8 +45,7 @@ from xcheck.parameters import (
 from xcheck.schema import PART_KINDS
 from xcheck.values import parse_value
 
-EXTRA_RESISTANCE: ParameterKey = ("loop", "extra_resistance")
-LOOP_DC_REMAINDER: ParameterKey = ("loop", "extra_resistance")
+EXTRA_RESISTANCE: ParameterKey = LOOP_EXTRA_RESISTANCE
 
 #: Uncertainty assumed for a two-wire low-ohm reading when the fixture gives none:
 #: 1 % of the reading plus 10 mOhm (contact repeatability). Common practice, no source.

@@ -28,7 +28,8 @@ from xcheck.candidates import (
 from xcheck.circuit import build_circuit
 from xcheck.engines.theory import SecondOrder, TheoryNotApplicable, characterise, simulate_theory
 from xcheck.errors import SimulationError, XcheckError
-from xcheck.fit import FitResult, Observation, fit_candidate
+from xcheck.fit import FitResult, Observation, fit_candidate, peak_indices
+from xcheck.parameters import label_key
 from xcheck.fixture import Fixture
 from xcheck.measured import Measured, display_path, measure
 from xcheck.rank import Ranked, rank_by_bic
@@ -275,13 +276,13 @@ def _ngspice_curve(circuit, fit: FitResult, obs: Observation) -> tuple[np.ndarra
         theory = simulate_theory(circuit, times).probe_voltage
         gain = fit.nuisance["gain"][0]
         amplitude = float(np.max(np.abs(theory))) or 1.0
-        offset = float(np.mean(fit.model - gain * theory))
+        offset = fit.nuisance["offset"][0]
         return gain * raw + offset, float(np.max(np.abs(raw - theory)) / amplitude)
     # Peak table: ngspice's turning points, numbered from the event as the fit numbers
     # the readings, scaled by the fitted amplitude.
     second = characterise(circuit)
-    first = 1 if circuit.response == "step" else 0
-    index = first + np.rint((obs.time - obs.time[0]) / (obs.period / 2)).astype(int)
+    index = peak_indices(obs, circuit.response)
+    first = int(index[0])
     half = math.pi / second.omega_d
     count = int(index.max()) + 1
     wave = simulate_ngspice(circuit, stop_time=(count + 0.5) * half)
@@ -413,11 +414,6 @@ def _loop_findings(fixture: Fixture, outcomes: list[CandidateOutcome]) -> list[s
     return findings
 
 
-def _label_key(label: str) -> tuple[str, str]:
-    part, _, name = label.partition(".")
-    return (part, name)
-
-
 def _sentence(text: str) -> str:
     text = text.strip()
     if not text:
@@ -443,7 +439,7 @@ def _against_label(fixture: Fixture, value) -> str:
 def _degeneracy_sentences(fixture: Fixture, outcome: CandidateOutcome) -> list[str]:
     sentences = []
     for group in outcome.fit.degeneracies:
-        names = [describe_key(fixture, _label_key(m)) for m in group.members]
+        names = [describe_key(fixture, label_key(m)) for m in group.members]
         if group.combination == "sum" and math.isfinite(group.value):
             sentences.append(
                 f"In '{outcome.name}' the data determine only the sum {' + '.join(names)} = "

@@ -29,7 +29,7 @@ from xcheck.engines.theory import characterise, simulate_theory
 from xcheck.errors import XcheckError
 from xcheck.fixture import Fixture
 from xcheck.identifiability import Degeneracy, find_degeneracies, reason_for
-from xcheck.parameters import ParameterSet
+from xcheck.parameters import ParameterSet, label_key
 
 ObservationKind = Literal["trace", "peaks"]
 
@@ -152,10 +152,11 @@ class _Model:
         return t, simulate_theory(circuit, t).probe_voltage
 
 
-def _peak_indices(obs: Observation, first: int) -> np.ndarray:
-    """Number each reading by the half-periods since the first, which is turning point
-    ``first`` (0, the event itself, for a natural response; 1, the first overshoot,
-    for a step)."""
+def peak_indices(obs: Observation, response: str) -> np.ndarray:
+    """Number each reading of a peak table by the half-periods since the first, which
+    is turning point 0 (the event itself) for a natural response and 1 (the first
+    overshoot) for a step."""
+    first = 1 if response == "step" else 0
     half = obs.period / 2.0
     return first + np.rint((obs.time - obs.time[0]) / half).astype(int)
 
@@ -257,7 +258,7 @@ def _merge_degeneracies(
         members = [m for m in group.members]
         first = values.get(members[0])
         stderr = first.stderr if first is not None else float("nan")
-        member_values = [params.get(_key(m), 0.0) or 0.0 for m in members] if params else []
+        member_values = [params.get(label_key(m), 0.0) or 0.0 for m in members] if params else []
         if group.combination == "sum":
             combined = float(sum(member_values))
         elif group.combination == "product":
@@ -270,11 +271,6 @@ def _merge_degeneracies(
                        group.correlation)
         )
     return FitResult(**{**refit.__dict__, "degeneracies": tuple(merged)})
-
-
-def _key(label: str) -> tuple[str, str]:
-    part, _, name = label.partition(".")
-    return (part, name)
 
 
 def _fit(fixture: Fixture, candidate: Candidate, obs: Observation,
@@ -423,8 +419,7 @@ def _trace_residuals(model: _Model, obs: Observation, sigma: np.ndarray, start: 
 
 
 def _peak_residuals(model: _Model, obs: Observation, sigma: np.ndarray, start: np.ndarray):
-    first = 1 if model.fixture.response == "step" else 0
-    index = _peak_indices(obs, first)
+    index = peak_indices(obs, model.fixture.response)
     count = int(index.max()) + 1
     time_sigma = obs.time_sigma if obs.time_sigma > 0 else obs.period * 1e-3
     t_model0, v_model0 = model.extrema(start, count)

@@ -82,6 +82,13 @@ LOOP_EXTRA_RESISTANCE: ParameterKey = ("loop", "extra_resistance")
 LOOP_EXTRA_INDUCTANCE: ParameterKey = ("loop", "extra_inductance")
 
 
+def label_key(label: str) -> ParameterKey:
+    """The key of a ``"PART.FIELD"`` label as reports and fits print it:
+    ``"L1.dcr"`` -> ``("L1", "dcr")``."""
+    part, _, name = label.partition(".")
+    return (part, name)
+
+
 def parameters_from_fixture(
     fixture: Fixture,
     *,

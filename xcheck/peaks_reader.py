@@ -34,22 +34,10 @@ from xcheck.values import parse_value
 
 
 def read_peak_table(path: str | Path) -> PeakTable:
-    """Read and check a cursor peak table (the rules: :func:`xcheck.trace.read_peaks`).
+    """Read and check a cursor peak table.
 
-    Parameters
-    ----------
-    path
-        The table (optionally gzip-compressed).
-
-    Returns
-    -------
-    PeakTable
-        Time (s), voltage (V) and uncertainty (V, or None), sorted as written.
-
-    Raises
-    ------
-    TraceError
-        Listing every problem found (see :func:`xcheck.trace.read_peaks`).
+    The body of :func:`xcheck.trace.read_peaks`, whose docstring gives the file rules,
+    parameters, return value and errors.
     """
     src = open_source(path, HEAD_BYTES)
     check_text(src)

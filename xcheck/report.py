@@ -42,6 +42,7 @@ from xcheck import __version__
 from xcheck.compare import CandidateOutcome, Comparison
 from xcheck.errors import XcheckError
 from xcheck.figures import envelope_figure, overlay_figure, residual_figure
+from xcheck.parameters import label_key
 from xcheck.safety import CAUTION, assess
 from xcheck.values import format_eng
 
@@ -190,7 +191,7 @@ def markdown(comparison: Comparison, data: dict[str, Any]) -> str:
                 if value.label in group.members:
                     held = [m for m in group.members if m != value.label]
                     shown = ", ".join(
-                        f"{m} held at {format_eng(outcome.fit.parameters.get(_key(m), 0.0) or 0.0, group.unit or value.unit)}"
+                        f"{m} held at {format_eng(outcome.fit.parameters.get(label_key(m), 0.0) or 0.0, group.unit or value.unit)}"
                         for m in held)
                     note = (f"only the {group.combination} with {', '.join(held)} is determined "
                             f"({shown}); the ± applies to the {group.combination}")
@@ -233,11 +234,6 @@ def markdown(comparison: Comparison, data: dict[str, Any]) -> str:
     if not safety.hazardous:
         lines += ["", "---", "", "Working with charged capacitors: " + CAUTION]
     return "\n".join(lines) + "\n"
-
-
-def _key(label: str) -> tuple[str, str]:
-    part, _, name = label.partition(".")
-    return (part, name)
 
 
 def _eng(value: float | None, unit: str) -> str:
