@@ -1,10 +1,10 @@
-"""Reader throughput: xcheck.trace.read_trace against a bare pyarrow.csv.read_csv.
+"""Reader throughput: xcheck.capture.scope_csv.read_trace against a bare pyarrow.csv.read_csv.
 
 Writes a 10-million-row, two-column CSV (time, channel; an invented damped ringing with
 noise, 8-bit-like quantisation) to a temporary directory, then times, in one run:
 
 - ``pyarrow.csv.read_csv(path)`` with default options (the bare reader), and
-- ``xcheck.trace.read_trace(path)``: layout sniffing, the same reader, then every check
+- ``xcheck.capture.scope_csv.read_trace(path)``: layout sniffing, the same reader, then every check
   (finite values, strictly increasing time, metadata cross-checks, quantisation step,
   clipping) and the conversion to SI numpy arrays.
 
@@ -25,7 +25,7 @@ from pathlib import Path
 import numpy as np
 import pyarrow.csv as pacsv
 
-from xcheck.trace import read_trace
+from xcheck.capture.scope_csv import read_trace
 
 
 def write_capture(path: Path, rows: int, seed: int = 0) -> None:

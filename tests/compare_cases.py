@@ -1,6 +1,6 @@
 """Seeded synthetic events for the comparison tests (invented scenarios).
 
-The captures are integrated by scipy.signal.lsim (xcheck.synth), independently of the
+The captures are integrated by scipy.signal.lsim (xcheck.demo.synth), independently of the
 closed-form engine the fit uses.
 """
 
@@ -10,7 +10,7 @@ from pathlib import Path
 
 import numpy as np
 
-from xcheck.synth import ScopeCapture, capture_trace, peak_table, write_capture_csv
+from xcheck.demo.synth import ScopeCapture, capture_trace, peak_table, write_capture_csv
 
 #: Hidden extra series loss in the "lossy jig" case (ohms).
 HIDDEN_EXTRA = 0.35

@@ -4,6 +4,7 @@ use them unless several test modules need them."""
 from __future__ import annotations
 
 from collections.abc import Callable
+from dataclasses import dataclass
 from pathlib import Path
 
 import pytest
@@ -64,6 +65,39 @@ def write_toml(tmp_path: Path) -> Callable[[str, str], Path]:
         return path
 
     return write
+
+
+def unwrap(text: str) -> str:
+    """``text`` with every run of white space folded to one space.
+
+    The CLI wraps its error paragraph at a fixed width, so where a line breaks depends on
+    how long the file paths in it are (the temporary folder's name). Tests match against
+    the unwrapped text so that no result depends on path length or terminal width.
+    """
+    return " ".join(text.split())
+
+
+@dataclass(frozen=True)
+class Printed:
+    """What a CLI call printed: ``out`` and ``err`` unwrapped (see :func:`unwrap`), and
+    the raw text for checks of the layout itself (one paragraph, no blank line)."""
+
+    out: str
+    err: str
+    raw_out: str
+    raw_err: str
+
+
+@pytest.fixture
+def printed(capsys: pytest.CaptureFixture[str]) -> Callable[[], Printed]:
+    """Read what was printed since the last call, unwrapped; the one way tests read CLI
+    output."""
+
+    def read() -> Printed:
+        captured = capsys.readouterr()
+        return Printed(unwrap(captured.out), unwrap(captured.err), captured.out, captured.err)
+
+    return read
 
 
 def ngspice_available() -> bool:

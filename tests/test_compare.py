@@ -1,6 +1,6 @@
 """End-to-end comparison on seeded synthetic events with a hidden extra series loss.
 
-References: the synthetic captures come from scipy.signal.lsim (xcheck.synth), not from
+References: the synthetic captures come from scipy.signal.lsim (xcheck.demo.synth), not from
 the closed-form engine the fit uses; the BIC evidence scale is Kass & Raftery (1995);
 the equivalence of series resistances in a series-RLC ring-down (alpha = R_total / 2L)
 is the textbook natural response (Nilsson & Riedel, "Electric Circuits"; from memory).
@@ -22,8 +22,8 @@ from compare_cases import (
     write_trace,
 )
 from xcheck.compare import run_comparison
-from xcheck.fixture_reader import load_fixture
-from xcheck.report import summary, write_report
+from xcheck.fixture.reader import load_fixture
+from xcheck.report.markdown import summary, write_report
 
 
 @pytest.fixture
@@ -155,7 +155,7 @@ def test_a_capture_that_no_candidate_fits_is_called_out(tmp_path, lossy_fixture)
     """A ring at sqrt(2) times the frequency the measured L and C allow: no rung frees
     L or C, so nothing fits, and the verdict must say so before anything else."""
     from compare_cases import lossy_capture
-    from xcheck.synth import capture_trace, write_capture_csv
+    from xcheck.demo.synth import capture_trace, write_capture_csv
 
     capture = lossy_capture(31).with_(inductance=215e-6 / 2)
     path = write_capture_csv(tmp_path / "other.csv", *capture_trace(capture))
@@ -166,7 +166,7 @@ def test_a_capture_that_no_candidate_fits_is_called_out(tmp_path, lossy_fixture)
 def test_losses_above_what_the_ringing_shows_are_reported_as_such(tmp_path, lossy_fixture):
     """True series resistance 0.6 ohm, while R1 + SW1 + ESR alone state 1.025 ohm."""
     from compare_cases import lossy_capture
-    from xcheck.synth import capture_trace, write_capture_csv
+    from xcheck.demo.synth import capture_trace, write_capture_csv
 
     capture = lossy_capture(32).with_(resistance=0.6)
     path = write_capture_csv(tmp_path / "low.csv", *capture_trace(capture))
@@ -180,7 +180,7 @@ def test_losses_above_what_the_ringing_shows_are_reported_as_such(tmp_path, loss
 def _step_capture(seed: int):
     """The invented LC-filter example's true step event: stated losses (switch 10 mOhm,
     cable 20 mOhm, DCR 15 mOhm, ESR 30 mOhm, source 50 mOhm) plus 80 mOhm unexplained."""
-    from xcheck.synth import ScopeCapture
+    from xcheck.demo.synth import ScopeCapture
 
     return ScopeCapture(resistance=0.125 + 0.08, inductance=10.3e-6, capacitance=100e-6,
                         esr=0.03, initial_volts=0.0, step_volts=24.0, sample_interval=0.2e-6,
@@ -191,7 +191,7 @@ def _step_capture(seed: int):
 def test_step_response_hidden_loss_from_trace_and_from_peaks(tmp_path):
     from pathlib import Path
 
-    from xcheck.synth import capture_trace, peak_table, write_capture_csv
+    from xcheck.demo.synth import capture_trace, peak_table, write_capture_csv
 
     fixture = load_fixture(Path(__file__).parent.parent / "examples" / "lc_filter_step.toml")
     capture = _step_capture(5)

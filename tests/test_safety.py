@@ -7,7 +7,7 @@ from memory). Thresholds of about 60 V DC and 10 J: common practice, no source.
 
 import pytest
 
-from xcheck.fixture_reader import parse_fixture
+from xcheck.fixture.reader import parse_fixture
 from xcheck.safety import CAUTION, assess
 
 

@@ -3,7 +3,7 @@
 :func:`run_comparison` reads and aligns the measurement, estimates its ring-down,
 fits every candidate with the closed-form engine, evaluates each fitted candidate in
 ngspice, ranks the candidates by BIC and writes a verdict. It returns a
-:class:`Comparison`; rendering is :mod:`xcheck.report`'s job.
+:class:`Comparison`; rendering is :mod:`xcheck.report.markdown`'s job.
 """
 
 from __future__ import annotations
@@ -16,7 +16,7 @@ from typing import Callable
 
 import numpy as np
 
-from xcheck.candidates import (
+from xcheck.fitting.candidates import (
     Candidate,
     describe_key,
     meter_uncertainty,
@@ -25,14 +25,14 @@ from xcheck.candidates import (
     dc_series_keys,
     series_resistance,
 )
-from xcheck.circuit import build_circuit
+from xcheck.circuit.expand import build_circuit
 from xcheck.engines.theory import SecondOrder, TheoryNotApplicable, characterise, simulate_theory
 from xcheck.errors import SimulationError, XcheckError
-from xcheck.fit import FitResult, Observation, fit_candidate, peak_indices
-from xcheck.parameters import label_key
-from xcheck.fixture import Fixture
+from xcheck.fitting.fit import FitResult, Observation, fit_candidate, peak_indices
+from xcheck.circuit.parameters import label_key
+from xcheck.fixture.model import Fixture
 from xcheck.measured import Measured, display_path, measure
-from xcheck.rank import Ranked, rank_by_bic
+from xcheck.fitting.rank import Ranked, rank_by_bic
 from xcheck.ringdown import estimate_ringdown
 from xcheck.values import format_eng
 
@@ -102,7 +102,7 @@ class InputFile:
 
 @dataclass(frozen=True)
 class Comparison:
-    """Result of a three-way comparison, ready for :mod:`xcheck.report`."""
+    """Result of a three-way comparison, ready for :mod:`xcheck.report.markdown`."""
 
     fixture: Fixture
     measured: Measured

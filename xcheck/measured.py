@@ -2,7 +2,7 @@
 
 :func:`measure` turns a scope export or a peak table into a :class:`Measured`: the
 aligned samples (event at t = 0), the ring-down estimate with its uncertainties and
-envelope diagnostics, the alignment findings, and the :class:`~xcheck.fit.Observation`
+envelope diagnostics, the alignment findings, and the :class:`~xcheck.fitting.fit.Observation`
 candidates are fitted to.
 """
 
@@ -15,12 +15,13 @@ from typing import Any
 
 import numpy as np
 
-from xcheck.align import Alignment, align_trace
-from xcheck.fit import Observation
-from xcheck.fixture import Fixture
+from xcheck.capture.align import Alignment, align_trace
+from xcheck.fitting.fit import Observation
+from xcheck.fixture.model import Fixture
 from xcheck.ringdown import RingdownEstimate, estimate_from_peaks, estimate_ringdown
 from xcheck.ringdown.peaks import decimal_resolution, rounded_time_sigma
-from xcheck.trace import read_peaks, read_trace
+from xcheck.capture.peak_table import read_peaks
+from xcheck.capture.scope_csv import read_trace
 from xcheck.values import format_eng
 
 

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from xcheck.fixture import Fixture
+from xcheck.fixture.model import Fixture
 from xcheck.values import format_eng
 
 HAZARDOUS_VOLTS = 60.0

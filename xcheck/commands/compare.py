@@ -9,8 +9,8 @@ from pathlib import Path
 
 from xcheck.compare import Comparison, run_comparison
 from xcheck.errors import XcheckError
-from xcheck.fixture_reader import load_fixture
-from xcheck.report import write_report
+from xcheck.fixture.reader import load_fixture
+from xcheck.report.markdown import write_report
 from xcheck.values import parse_value
 
 

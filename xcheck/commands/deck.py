@@ -14,11 +14,11 @@ import sys
 import tempfile
 from pathlib import Path
 
-from xcheck.deck import is_xcheck_deck, write_deck
+from xcheck.engines.deck import is_xcheck_deck, write_deck
 from xcheck.errors import XcheckError
-from xcheck.expand import build_circuit
-from xcheck.fixture_reader import load_fixture
-from xcheck.parameters import parameters_from_fixture
+from xcheck.circuit.expand import build_circuit
+from xcheck.fixture.reader import load_fixture
+from xcheck.circuit.parameters import parameters_from_fixture
 from xcheck.values import format_eng
 
 #: Folder (relative to the current directory) the deck goes to without ``--out``.

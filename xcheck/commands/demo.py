@@ -8,8 +8,8 @@ from pathlib import Path
 
 from xcheck.commands.compare import finish, progress_printer
 from xcheck.compare import run_comparison
-from xcheck.demo_data import DEMO_SEED, demo_fixture_path, demo_trace_path
-from xcheck.fixture_reader import load_fixture
+from xcheck.demo.data import DEMO_SEED, demo_fixture_path, demo_trace_path
+from xcheck.fixture.reader import load_fixture
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:

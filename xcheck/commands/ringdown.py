@@ -1,10 +1,10 @@
 """``xcheck ringdown TRACE``: frequency and decay of a measured ring-down, with uncertainties.
 
-A waveform file is read (:func:`xcheck.trace.read_trace`), the event found and the time
-axis moved to it (:func:`xcheck.align.align_trace`), clipped samples left out, and the
+A waveform file is read (:func:`xcheck.capture.scope_csv.read_trace`), the event found and the time
+axis moved to it (:func:`xcheck.capture.align.align_trace`), clipped samples left out, and the
 ring-down estimated (:func:`xcheck.ringdown.estimate_ringdown`) with the pre-event noise
 as the noise level. With ``--peaks`` the file is a table of extrema read off cursors
-(:func:`xcheck.trace.read_peaks`, :func:`xcheck.ringdown.estimate_from_peaks`).
+(:func:`xcheck.capture.peak_table.read_peaks`, :func:`xcheck.ringdown.estimate_from_peaks`).
 
 Prints the table (value +- standard error, Cramér-Rao bound) in engineering notation,
 the envelope findings and notes; writes a PNG (the trace with the fitted model; the
@@ -29,7 +29,7 @@ from xcheck.ringdown import estimate_from_peaks, estimate_ringdown
 from xcheck.values import format_eng, parse_value
 
 if TYPE_CHECKING:
-    from xcheck.align import Alignment
+    from xcheck.capture.align import Alignment
 
 #: Folder (relative to the current directory) the PNG goes to without ``--out``.
 DEFAULT_ROOT = Path("reports")
@@ -138,7 +138,7 @@ def run(args: argparse.Namespace) -> int:
         )
     context: list[str] = []
     if args.peaks:
-        from xcheck.trace import read_peaks
+        from xcheck.capture.peak_table import read_peaks
 
         table = read_peaks(args.trace)
         estimate = estimate_from_peaks(
@@ -149,8 +149,8 @@ def run(args: argparse.Namespace) -> int:
         context.append(f"peak table {table.source}: {len(table)} extrema")
         alignment_json = None
     else:
-        from xcheck.align import align_trace
-        from xcheck.trace import read_trace
+        from xcheck.capture.align import align_trace
+        from xcheck.capture.scope_csv import read_trace
 
         trace = read_trace(
             args.trace,
@@ -359,7 +359,7 @@ def write_figure(
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from xcheck.figures import time_scale
+    from xcheck.report.figures import time_scale
 
     et = np.asarray(estimate.extrema_time)
     span = _shown_span(estimate, time, et)

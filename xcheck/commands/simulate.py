@@ -23,17 +23,17 @@ from pathlib import Path
 
 import numpy as np
 
-from xcheck.circuit import Circuit
+from xcheck.circuit.model import Circuit
 from xcheck.engines.ngspice import simulate_ngspice
 from xcheck.engines.theory import SecondOrder, TheoryNotApplicable, characterise, simulate_theory
 from xcheck.atomic import PNG_METADATA, png_is_ours, write_atomically
 from xcheck.errors import XcheckError
-from xcheck.expand import build_circuit
-from xcheck.fixture import Fixture
-from xcheck.fixture_reader import load_fixture
-from xcheck.parameters import parameters_from_fixture
+from xcheck.circuit.expand import build_circuit
+from xcheck.fixture.model import Fixture
+from xcheck.fixture.reader import load_fixture
+from xcheck.circuit.parameters import parameters_from_fixture
 from xcheck.values import format_eng
-from xcheck.waveform import Waveform
+from xcheck.engines.waveform import Waveform
 
 #: Folder (relative to the current directory) the outputs go to without ``--out``.
 DEFAULT_ROOT = Path("reports")

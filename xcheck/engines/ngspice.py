@@ -41,9 +41,9 @@ from typing import Any
 
 import numpy as np
 
-from xcheck.circuit import Circuit
+from xcheck.circuit.model import Circuit
 from xcheck.errors import SimulationError
-from xcheck.waveform import Waveform
+from xcheck.engines.waveform import Waveform
 
 #: What to install when the shared library cannot be loaded.
 INSTALL_HELP = (
@@ -537,7 +537,7 @@ def simulate_ngspice(
     circuit
         The circuit.
     stop_time
-        End of the run in seconds; None lets :func:`xcheck.timing.transient_settings`
+        End of the run in seconds; None lets :func:`xcheck.engines.timing.transient_settings`
         choose it.
     timeout
         Seconds the run may take.
@@ -547,8 +547,8 @@ def simulate_ngspice(
     Waveform
         ``engine="ngspice"``; ``notes`` include the time step used.
     """
-    from xcheck.deck import deck_names, write_deck
-    from xcheck.timing import transient_settings
+    from xcheck.engines.deck import deck_names, write_deck
+    from xcheck.engines.timing import transient_settings
 
     deck = write_deck(circuit, stop_time=stop_time)
     names = deck_names(circuit)

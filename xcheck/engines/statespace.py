@@ -1,4 +1,4 @@
-"""Linear state-space model of a :class:`~xcheck.circuit.Circuit` (normal-tree method).
+"""Linear state-space model of a :class:`~xcheck.circuit.model.Circuit` (normal-tree method).
 
 Any circuit of R, L, C and DC V elements is turned into
 
@@ -29,7 +29,7 @@ import networkx as nx
 import numpy as np
 import scipy.linalg
 
-from xcheck.circuit import Circuit, Element
+from xcheck.circuit.model import Circuit, Element
 from xcheck.errors import SimulationError
 
 #: Preference of each kind for the normal tree (lower goes in first).

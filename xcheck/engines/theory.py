@@ -40,10 +40,10 @@ from typing import Literal
 import networkx as nx
 import numpy as np
 
-from xcheck.circuit import Circuit, Element
+from xcheck.circuit.model import Circuit, Element
 from xcheck.engines.statespace import natural_modes
 from xcheck.errors import SimulationError
-from xcheck.waveform import Waveform
+from xcheck.engines.waveform import Waveform
 
 Regime = Literal["underdamped", "critically damped", "overdamped", "first order"]
 

@@ -86,7 +86,7 @@ def decimal_resolution(values: np.ndarray) -> float | None:
     -----
     Trailing zeros are invisible here ("0.50" reads as 0.5), so a column whose every
     entry ends in a written zero gets a step ten times too coarse; the text itself
-    (:attr:`xcheck.trace.PeakTable.time_resolution`) tells them apart.
+    (:attr:`xcheck.capture.scope_csv.PeakTable.time_resolution`) tells them apart.
     """
     x = np.asarray(values, dtype=float).ravel()
     x = np.abs(x[np.isfinite(x) & (x != 0)])
@@ -128,7 +128,7 @@ def estimate_from_peaks(
         otherwise the offset is held at 0 V.
     time_resolution, voltage_resolution
         Step of the last digit the times (s) and values (V) were written with
-        (:attr:`xcheck.trace.PeakTable.time_resolution` gives it from the text).
+        (:attr:`xcheck.capture.scope_csv.PeakTable.time_resolution` gives it from the text).
         Default: inferred from the numbers (:func:`decimal_resolution`); 0 turns the
         floor off. Their rounding, ``resolution / sqrt(12)`` standard deviation, is the
         least error the times and values are taken to carry.

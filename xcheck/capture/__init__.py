@@ -1,0 +1,1 @@
+"""The measured side: Trace and PeakTable, one reader per format, clipping, alignment."""

@@ -1,0 +1,1 @@
+"""Primitive-element circuit: the model, parameter sets, expansion with parasitics."""

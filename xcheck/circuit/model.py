@@ -1,0 +1,318 @@
+"""Primitive element graph shared by every engine.
+
+A :class:`Circuit` is what both the SPICE deck and closed-form theory consume, so the
+two always describe the same physics. Elements are R, L, C, V (independent DC source,
+also used at 0 V as an ideal switch and current sense) between named nodes; ground is
+``"0"``.
+
+This module owns the data types (:class:`Element`, :class:`Circuit`), the naming
+helpers shared with the deck writer (:func:`spice_identifier`, :class:`UniqueNames`),
+the graph view (:func:`circuit_graph`) and the topology checks
+(:func:`topology_problems`, :func:`check_topology`). Expanding a fixture into a circuit
+(:func:`~xcheck.circuit.expand.build_circuit`, :func:`~xcheck.circuit.expand.parameter_problems`, the
+series layouts) lives in :mod:`xcheck.circuit.expand`; those names are still reachable from
+here, resolved on first use.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from dataclasses import dataclass, field
+from typing import Literal
+
+import networkx as nx
+from networkx.utils import UnionFind
+
+from xcheck.errors import FixtureError
+
+
+ElementKind = Literal["R", "L", "C", "V"]
+
+
+@dataclass(frozen=True)
+class Element:
+    """One primitive element.
+
+    Attributes
+    ----------
+    name
+        Unique identifier made only of letters, digits and underscores, starting with
+        the SPICE letter of its kind (``"C_C1"``, ``"R_C1_esr"``).
+    kind
+        ``"R"`` (ohms), ``"L"`` (henries), ``"C"`` (farads) or ``"V"`` (volts).
+    nodes
+        (first node, second node); for C the initial voltage is first minus second,
+        for L and V the current flows from the first node through the element.
+    value
+        SI value.
+    initial
+        Initial condition (V across a C, A through an L) or None.
+    part
+        Fixture part it belongs to, or a pseudo-part (``"probe"``, ``"step"``, ``"loop"``).
+    role
+        ``"value"`` for the part's own element, else the parasitic or pseudo field.
+    origin
+        Where the value came from (see :mod:`xcheck.circuit.parameters`).
+    """
+
+    name: str
+    kind: ElementKind
+    nodes: tuple[str, str]
+    value: float
+    initial: float | None = None
+    part: str = ""
+    role: str = "value"
+    origin: str = ""
+    #: False for elements across a part rather than in series with the loop
+    #: (capacitor leakage, inductor self-capacitance, probe loading).
+    in_loop: bool = True
+
+
+@dataclass(frozen=True)
+class Circuit:
+    """A linear circuit with a probe, ready for any engine.
+
+    Attributes
+    ----------
+    title
+        Free text (sanitised before it reaches a deck).
+    elements
+        Elements in deterministic order (loop order, then parallel elements).
+    probe
+        (plus node, minus node) of the measured voltage.
+    response
+        ``"natural"`` or ``"step"``.
+    current_sense
+        Name of a 0 V source in the loop whose current is the loop current, or None.
+        Its nodes follow the loop order, so its SPICE branch current is the loop
+        current in the direction the loop is written.
+    ground
+        The reference node.
+    source
+        Where the circuit came from (the fixture file), for messages and deck headers.
+    """
+
+    title: str
+    elements: tuple[Element, ...]
+    probe: tuple[str, str]
+    response: str = "natural"
+    current_sense: str | None = None
+    ground: str = field(default="0")
+    source: str = ""
+
+    @property
+    def nodes(self) -> tuple[str, ...]:
+        """Every node, in order of first appearance."""
+        seen: dict[str, None] = {}
+        for element in self.elements:
+            for node in element.nodes:
+                seen.setdefault(node, None)
+        return tuple(seen)
+
+    def element(self, name: str) -> Element:
+        """The element called ``name``.
+
+        Raises
+        ------
+        KeyError
+            When there is no such element.
+        """
+        for item in self.elements:
+            if item.name == name:
+                return item
+        raise KeyError(name)
+
+
+class TopologyError(FixtureError):
+    """The circuit's wiring would leave ngspice without a unique solution, or makes
+    no sense (a floating node, no ground, a loop of voltage sources)."""
+
+    subject = "circuit"
+
+
+GROUND = "0"
+
+#: Names ngspice treats specially as nodes: ``0`` and its global alias ``gnd``.
+RESERVED_NODE_NAMES = ("0", "gnd")
+
+_NOT_IDENT = re.compile(r"[^A-Za-z0-9_]+")
+#: Longest identifier kept (fixture part names are at most 32 characters).
+MAX_IDENTIFIER = 64
+
+
+def spice_identifier(text: str, prefix: str = "x") -> str:
+    """``text`` reduced to ASCII letters, digits and underscores, starting with a letter.
+
+    Parameters
+    ----------
+    text
+        Any string (a part name, a node name).
+    prefix
+        Letter(s) put in front when the reduced text does not start with a letter, and
+        used alone when nothing is left.
+
+    Returns
+    -------
+    str
+        At most :data:`MAX_IDENTIFIER` characters; it cannot contain white space, a
+        line break, a comment or a quote.
+    """
+    ident = _NOT_IDENT.sub("_", str(text)).strip("_")
+    if not ident:
+        return prefix
+    if not ident[0].isalpha():
+        ident = f"{prefix}_{ident}"
+    return ident[:MAX_IDENTIFIER]
+
+
+class UniqueNames:
+    """Hands out names that are unique ignoring case, as SPICE compares them."""
+
+    def __init__(self, reserved: tuple[str, ...] = ()) -> None:
+        self._used = {name.lower() for name in reserved}
+
+    def take(self, base: str) -> str:
+        """``base``, or ``base_2``, ``base_3``, ... when it is already taken."""
+        name, count = base, 2
+        while name.lower() in self._used:
+            name, count = f"{base}_{count}", count + 1
+        self._used.add(name.lower())
+        return name
+
+
+# --------------------------------------------------------------------------------------
+# Graph and topology checks
+# --------------------------------------------------------------------------------------
+
+_NAME_RE = re.compile(r"[A-Za-z][A-Za-z0-9_]*")
+
+
+def circuit_graph(circuit: Circuit) -> nx.MultiGraph:
+    """The circuit as a multigraph: nodes are circuit nodes, edges are elements.
+
+    Parameters
+    ----------
+    circuit
+        Any circuit.
+
+    Returns
+    -------
+    networkx.MultiGraph
+        One edge per element, keyed by the element name, with attributes ``element``
+        (the :class:`Element`) and ``kind``; the ground node carries ``ground=True``.
+    """
+    graph = nx.MultiGraph(title=circuit.title)
+    for node in circuit.nodes:
+        graph.add_node(node, ground=node == circuit.ground)
+    for element in circuit.elements:
+        graph.add_edge(*element.nodes, key=element.name, element=element, kind=element.kind)
+    return graph
+
+
+def topology_problems(circuit: Circuit) -> list[str]:
+    """Everything that would make the circuit singular or meaningless in ngspice.
+
+    The transient analysis runs with ``uic`` (no DC operating point), so a node
+    reached only through capacitors, or a cut-set of inductors, is solvable: each
+    capacitor and inductor becomes a finite companion conductance at every time step.
+    What remains singular or meaningless, and is checked here:
+
+    - no elements, or no ground node;
+    - a part of the circuit not connected to ground (its voltages are undefined);
+    - a node with fewer than two element terminals (a dangling element carries no
+      current and usually means a wiring mistake);
+    - an element with both terminals on one node;
+    - a loop made only of voltage sources (two sources fixing one voltage: the MNA
+      matrix is singular);
+    - element names that are not unique ignoring case (SPICE folds case), do not
+      start with their SPICE letter or contain other than letters, digits and ``_``;
+    - values that are not finite, or zero, or a negative capacitance or inductance;
+    - a probe node or current-sense source that is not in the circuit.
+
+    There are no current sources among the primitives, so no cut-set of
+    current-defined elements can occur.
+
+    Returns
+    -------
+    list of str
+        Plain-words problems; empty when the circuit is fine.
+    """
+    problems: list[str] = []
+    if not circuit.elements:
+        return ["the circuit has no elements"]
+    graph = circuit_graph(circuit)
+    seen: dict[str, str] = {}
+    for element in circuit.elements:
+        name = element.name
+        if not _NAME_RE.fullmatch(name) or name[0].upper() != element.kind:
+            problems.append(
+                f"element name {name!r} must start with {element.kind!r} and contain only "
+                "letters, digits and underscores"
+            )
+        if name.lower() in seen:
+            problems.append(
+                f"element names {seen[name.lower()]!r} and {name!r} are the same to SPICE, "
+                "which ignores case"
+            )
+        seen.setdefault(name.lower(), name)
+        if element.nodes[0] == element.nodes[1]:
+            problems.append(f"{name} has both terminals on node {element.nodes[0]!r}")
+        value = element.value
+        if not math.isfinite(value):
+            problems.append(f"{name} has the value {value!r}; expected a finite number")
+        elif element.kind in ("L", "C") and value <= 0:
+            problems.append(f"{name} has the value {value!r}; expected a positive value")
+        elif element.kind == "R" and value == 0:
+            problems.append(f"{name} is a zero resistance; leave it out instead")
+        if element.initial is not None and not math.isfinite(element.initial):
+            problems.append(f"{name} has the initial condition {element.initial!r}")
+    if circuit.ground not in graph:
+        problems.append(f"no element touches the ground node {circuit.ground!r}")
+    else:
+        for component in nx.connected_components(graph):
+            if circuit.ground not in component:
+                problems.append(
+                    "nodes " + ", ".join(sorted(component)) + " are not connected to ground"
+                )
+    for node in graph.nodes:
+        if graph.degree(node) < 2:
+            problems.append(
+                f"node {node!r} has only one element terminal "
+                f"({', '.join(k for _, _, k in graph.edges(node, keys=True))}): it floats"
+            )
+    sources = UnionFind()
+    for element in circuit.elements:
+        if element.kind == "V" and element.nodes[0] != element.nodes[1]:
+            a, b = element.nodes
+            if sources[a] == sources[b]:
+                problems.append(
+                    f"{element.name} closes a loop made only of voltage sources "
+                    "(the simulation would be singular)"
+                )
+            sources.union(a, b)
+    for node in circuit.probe:
+        if node not in graph:
+            problems.append(f"the probe node {node!r} is not in the circuit")
+    if circuit.current_sense is not None:
+        names = {e.name: e for e in circuit.elements}
+        sense = names.get(circuit.current_sense)
+        if sense is None or sense.kind != "V":
+            problems.append(
+                f"the current sense {circuit.current_sense!r} is not a voltage source "
+                "of the circuit"
+            )
+    return problems
+
+
+def check_topology(circuit: Circuit) -> None:
+    """Raise when the circuit cannot be simulated (see :func:`topology_problems`).
+
+    Raises
+    ------
+    TopologyError
+        Listing every problem, naming the circuit's source.
+    """
+    problems = topology_problems(circuit)
+    if problems:
+        raise TopologyError(circuit.source or circuit.title or "circuit", problems)

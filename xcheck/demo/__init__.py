@@ -1,0 +1,1 @@
+"""The embedded, invented demo: synthetic captures, the demo fixture and trace."""

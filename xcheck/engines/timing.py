@@ -1,0 +1,214 @@
+"""Transient time step and stop time derived from a circuit's natural modes.
+
+The deck uses the trapezoidal method: it adds no numerical damping (gear's damping
+would bias any loss fitted from the result). Its one error is a phase error: per step
+of length h a mode exp(s t) is multiplied by (1 + s h / 2) / (1 - s h / 2), which is
+exp(s h - (s h)^3 / 12 + ...). After a time t the mode has therefore drifted by about
+``|A| |s|^3 h^2 t exp(Re(s) t) / 12`` volts, where ``A`` is its amplitude in the probe
+voltage (a standard result on the trapezoidal rule's local truncation error, e.g.
+Hairer & Wanner, "Solving Ordinary Differential Equations", from memory).
+
+:func:`transient_settings` adds that drift over every significant mode, at its worst
+time within the run, and picks the largest ``h`` that keeps the total within a quarter
+of the accuracy target (the rest is left for ngspice's first, backward-Euler step and its
+own step control). Modes whose whole amplitude is below a small share of the target are
+insignificant: even if the step does not resolve them at all, their error cannot exceed
+twice their amplitude (the trapezoidal rule never amplifies a decaying mode), so they do
+not force a tiny step (a probe's few picofarads, a winding capacitance).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+import scipy.linalg
+
+from xcheck.circuit.model import Circuit
+from xcheck.engines.statespace import natural_modes, state_space
+
+#: Accuracy aimed at: largest error in the probe voltage relative to the reference
+#: voltage (initial capacitor voltage or step).
+TARGET_RELATIVE_ERROR = 1e-4
+#: Share of the target spent on resolved modes and on ignored (insignificant) modes.
+RESOLVED_SHARE = 0.25
+IGNORED_SHARE = 0.25
+#: Most points a run may take; beyond this the step is widened (and a note says so).
+#: 250 000 points keep one ngspice run near two seconds and its vectors near 6 MB.
+MAX_POINTS = 250_000
+#: Default length of a run: this many time constants of the slowest decaying mode,
+#: extended towards MIN_PERIODS periods of a ringing mode (at most twice as many
+#: time constants).
+DECAY_TIME_CONSTANTS = 5.0
+MIN_PERIODS = 10.0
+
+
+@dataclass(frozen=True)
+class TransientSettings:
+    """Arguments of the deck's ``.tran`` line (seconds) and the integration method.
+
+    Attributes
+    ----------
+    step
+        Print step (``tstep``).
+    stop
+        End of the run (``tstop``).
+    max_step
+        Largest internal step ngspice may take (``tmax``).
+    method
+        ``"trap"`` (trapezoidal).
+    notes
+        Plain-words remarks, e.g. when the point cap widened the step.
+    """
+
+    step: float
+    stop: float
+    max_step: float
+    method: str = "trap"
+    notes: tuple[str, ...] = field(default=(), compare=False)
+
+    @property
+    def points(self) -> int:
+        """Approximate number of time points of the run at the largest step."""
+        return int(math.ceil(self.stop / self.max_step))
+
+
+def transient_settings(circuit: Circuit, *, stop_time: float | None = None) -> TransientSettings:
+    """Choose the ``.tran`` step, maximum step and stop time for ``circuit``.
+
+    Parameters
+    ----------
+    circuit
+        The circuit to simulate (its probe defines which modes matter).
+    stop_time
+        End of the run in seconds (e.g. the length of a measured trace). Default: five
+        time constants of the slowest decaying significant mode, extended
+        towards ten periods of the slowest ringing one but not beyond ten time
+        constants; ten periods when nothing decays.
+
+    Returns
+    -------
+    TransientSettings
+        ``max_step`` keeps the trapezoidal phase error of the probe voltage within
+        ``RESOLVED_SHARE * TARGET_RELATIVE_ERROR`` of the reference voltage; ``step``
+        equals ``max_step``. When that would exceed ``MAX_POINTS`` points, the step is
+        widened to ``stop / MAX_POINTS`` and ``notes`` says the accuracy target may be
+        missed.
+    """
+    if stop_time is not None and not (math.isfinite(stop_time) and stop_time > 0):
+        raise ValueError(f"stop_time must be a positive number of seconds, got {stop_time!r}")
+    modes = natural_modes(circuit)
+    poles = modes.poles
+    reference = _reference_voltage(circuit, modes.initial, modes.steady)
+    notes: list[str] = []
+    if poles.size == 0:
+        stop = stop_time if stop_time is not None else 1e-6
+        notes.append("the circuit stores no energy; the run length is arbitrary")
+        return TransientSettings(stop / 100, stop, stop / 100, notes=tuple(notes))
+
+    amplitude = _clipped_amplitudes(circuit, modes, reference)
+    significant = _significant(amplitude, IGNORED_SHARE * TARGET_RELATIVE_ERROR * reference)
+    stop = stop_time if stop_time is not None else _default_stop(poles[significant])
+    budget = RESOLVED_SHARE * TARGET_RELATIVE_ERROR * reference
+    drift_rate = 0.0  # sum_k |A_k| |s_k|^3 max_t(t e^{Re s_k t}) / 12, volts per s^2
+    for pole, size in zip(poles[significant], amplitude[significant]):
+        drift_rate += size * abs(pole) ** 3 * _worst_time(pole.real, stop) / 12.0
+    max_step = math.sqrt(budget / drift_rate) if drift_rate > 0 else stop / 100
+    max_step = min(max_step, stop / 100)
+    if stop / max_step > MAX_POINTS:
+        notes.append(
+            f"the step needed for a {TARGET_RELATIVE_ERROR:g} relative accuracy "
+            f"({max_step:.3e} s) would take {stop / max_step:.3g} points; it was widened "
+            f"to {stop / MAX_POINTS:.3e} s ({MAX_POINTS} points), so the accuracy target "
+            "may be missed"
+        )
+        max_step = stop / MAX_POINTS
+    return TransientSettings(max_step, stop, max_step, notes=tuple(notes))
+
+
+def _reference_voltage(circuit: Circuit, initial: float, steady: float) -> float:
+    """The voltage the accuracy target is relative to: the largest initial capacitor
+    voltage, source voltage, initial or final probe voltage, or (for a circuit started
+    by an inductor current alone) the peak of the probe voltage."""
+    candidates = [abs(initial), abs(steady)]
+    for element in circuit.elements:
+        if element.kind == "C" and element.initial is not None:
+            candidates.append(abs(element.initial))
+        elif element.kind == "V":
+            candidates.append(abs(element.value))
+    reference = max(candidates)
+    if reference > 0:
+        return reference
+    peak = float(np.max(np.abs(_probe_samples(circuit, _default_stop(natural_modes(circuit).poles)))))
+    return peak if peak > 0 else 1.0
+
+
+def _probe_samples(circuit: Circuit, stop: float, count: int = 4001) -> np.ndarray:
+    """Exact probe voltage on a uniform grid (matrix exponential of the state model),
+    used only to size the response; it stays finite at repeated poles."""
+    model = state_space(circuit)
+    probe = model.voltage_between(*circuit.probe)
+    steady_state = model.steady_state()
+    step = scipy.linalg.expm(model.a * (stop / (count - 1)))
+    x = model.x0 - steady_state
+    out = np.empty(count)
+    offset = float(probe.x_coef @ steady_state + probe.u_coef @ model.u)
+    for k in range(count):
+        out[k] = probe.x_coef @ x + offset
+        x = step @ x
+    return out
+
+
+def _clipped_amplitudes(circuit: Circuit, modes, reference: float) -> np.ndarray:
+    """|amplitude| of each mode, clipped to the size of the response: near critical
+    damping the eigenvector amplitudes are huge and cancel, while the modes' true
+    contribution is of the order of the response itself."""
+    amplitude = np.abs(modes.amplitudes)
+    amplitude[~np.isfinite(amplitude)] = np.inf
+    if np.any(amplitude > reference):
+        stop = _default_stop(modes.poles)
+        peak = float(np.max(np.abs(_probe_samples(circuit, stop) - modes.steady)))
+        amplitude = np.minimum(amplitude, max(peak, reference))
+    return amplitude
+
+
+def _significant(amplitude: np.ndarray, allowance: float) -> np.ndarray:
+    """Mask of modes that must be resolved: the smallest modes are ignored while their
+    summed worst-case error (twice their amplitude) stays within ``allowance``."""
+    mask = np.ones(amplitude.size, dtype=bool)
+    spent = 0.0
+    for index in np.argsort(amplitude):
+        cost = 2.0 * amplitude[index]
+        if spent + cost > allowance:
+            break
+        spent += cost
+        mask[index] = False
+    return mask
+
+
+def _worst_time(decay: float, stop: float) -> float:
+    """max over 0 <= t <= stop of t * exp(decay * t)."""
+    if decay >= 0:
+        return stop * math.exp(decay * stop)
+    peak_time = min(-1.0 / decay, stop)
+    return peak_time * math.exp(decay * peak_time)
+
+
+def _default_stop(poles: np.ndarray) -> float:
+    """Default run length: five time constants of the slowest decaying mode, extended
+    towards ten periods of the slowest ringing mode but never beyond ten time constants
+    (by then the response is below 5e-5 of its start); ten periods when nothing decays."""
+    if poles.size == 0:
+        return 1e-6
+    decaying = poles[poles.real < 0]
+    ringing = poles[np.abs(poles.imag) > 0]
+    periods = (
+        MIN_PERIODS * 2 * math.pi / float(np.min(np.abs(ringing.imag))) if ringing.size else 0.0
+    )
+    if decaying.size:
+        tau = 1.0 / float(np.min(-decaying.real))
+        return max(DECAY_TIME_CONSTANTS * tau, min(periods, 2 * DECAY_TIME_CONSTANTS * tau))
+    if periods:
+        return periods
+    return 1.0 / float(np.max(np.abs(poles))) if np.any(poles) else 1e-3

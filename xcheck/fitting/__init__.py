@@ -1,0 +1,1 @@
+"""Fitting candidates to an observation: observations, fit, statistics, candidates, identifiability, rank."""

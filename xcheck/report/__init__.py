@@ -1,0 +1,1 @@
+"""Rendering: report.md, summary.json and every figure."""

@@ -1,0 +1,338 @@
+"""Render a :class:`~xcheck.compare.Comparison` as ``report.md``, PNGs and ``summary.json``.
+
+The folder is written atomically: everything goes into a temporary sibling folder that
+replaces the target only when complete. An existing folder is replaced only when it is
+an earlier xcheck report (it holds a ``summary.json`` that says so); anything else is
+left alone and reported as an error.
+
+``summary.json`` schema (version 1, stable; new keys may be added, none renamed):
+
+- ``schema`` ("xcheck-summary"), ``schema_version`` (1), ``tool`` {name, version}
+- ``best``: name of the top-ranked candidate, or null when all failed
+- ``verdict``: the verdict paragraph
+- ``candidates``: list, best first, of {``name``, ``description``, ``rank`` (int or
+  null), ``failed`` (bool), ``failure_reason``, ``nrmse``, ``rmse_volts``,
+  ``max_error_volts``, ``aic``, ``bic``, ``delta_bic``, ``evidence``, ``fitted`` (object:
+  "PART.FIELD" -> SI value), ``fitted_stderr`` (same keys), ``series_resistance_ohm``,
+  ``damped_frequency_hz``, ``neper_frequency_per_s``, ``engines`` {theory, ngspice: {rmse,
+  nrmse, max_error, aic, bic, damped_frequency_error_hz, neper_frequency_error_per_s} or
+  null}, ``engine_disagreement`` (max |ngspice - theory| / amplitude),
+  ``undetermined`` (list of {members, combination, value, stderr, unit, reason})}
+- ``measured``: {``kind``, ``damped_frequency_hz``, ``neper_frequency_per_s``,
+  ``initial_volts`` (each {value, stderr}), ``envelope_exponential`` (bool),
+  ``flagged_extrema`` (0-based indices in time order), ``findings``, ``alignment``}
+- ``inputs``: list of {role, path, sha256}; ``versions``; ``seeds``; ``safety``.
+All numbers are SI (s, V, ohm, H, F, Hz, 1/s); non-finite numbers are written as null.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import platform
+import shutil
+import tempfile
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from xcheck import __version__
+from xcheck.compare import CandidateOutcome, Comparison
+from xcheck.errors import XcheckError
+from xcheck.report.figures import envelope_figure, overlay_figure, residual_figure
+from xcheck.circuit.parameters import label_key
+from xcheck.safety import CAUTION, assess
+from xcheck.values import format_eng
+
+SCHEMA = "xcheck-summary"
+SCHEMA_VERSION = 1
+FIGURES = ("overlay.png", "residuals.png", "envelope.png")
+NUISANCE_UNITS = {"offset": "V", "shift": "s", "time_origin": "s"}
+
+
+def _finite(value: Any) -> Any:
+    if isinstance(value, (float, np.floating)):
+        return float(value) if math.isfinite(value) else None
+    return value
+
+
+def versions(comparison: Comparison) -> dict[str, str]:
+    """Versions of the tool and of the libraries that made the numbers."""
+    import scipy
+
+    return {
+        "xcheck": __version__,
+        "ngspice": comparison.ngspice_version or "not used",
+        "numpy": np.__version__,
+        "scipy": scipy.__version__,
+        "python": platform.python_version(),
+    }
+
+
+def _engine_json(metrics) -> dict[str, Any] | None:
+    if metrics is None:
+        return None
+    return {
+        "rmse": _finite(metrics.rmse),
+        "nrmse": _finite(metrics.nrmse),
+        "max_error": _finite(metrics.max_error),
+        "aic": _finite(metrics.aic),
+        "bic": _finite(metrics.bic),
+        "damped_frequency_error_hz": _finite(metrics.damped_frequency_error_hz),
+        "neper_frequency_error_per_s": _finite(metrics.neper_frequency_error_per_s),
+    }
+
+
+def _candidate_json(outcome: CandidateOutcome) -> dict[str, Any]:
+    fit = outcome.fit
+    theory = outcome.theory
+    second = outcome.second_order
+    return {
+        "name": outcome.name,
+        "description": outcome.candidate.description,
+        "rank": outcome.ranked.rank,
+        "failed": bool(outcome.failed),
+        "failure_reason": fit.message if outcome.failed else None,
+        "nrmse": _finite(theory.nrmse) if theory else None,
+        "rmse_volts": _finite(theory.rmse) if theory else None,
+        "max_error_volts": _finite(theory.max_error) if theory else None,
+        "aic": _finite(fit.aic),
+        "bic": _finite(fit.bic),
+        "delta_bic": _finite(outcome.ranked.delta_bic),
+        "evidence": outcome.ranked.evidence,
+        "fitted": {v.label: _finite(v.value) for v in fit.fitted},
+        "fitted_stderr": {v.label: _finite(v.stderr) for v in fit.fitted},
+        "series_resistance_ohm": _finite(outcome.series_resistance_ohm),
+        "damped_frequency_hz": _finite(second.omega_d / (2 * math.pi)) if second else None,
+        "neper_frequency_per_s": _finite(second.alpha) if second else None,
+        "engines": {"theory": _engine_json(outcome.theory), "ngspice": _engine_json(outcome.ngspice)},
+        "engine_disagreement": _finite(outcome.engine_disagreement),
+        "undetermined": [
+            {
+                "members": list(d.members),
+                "combination": d.combination,
+                "value": _finite(d.value),
+                "stderr": _finite(d.stderr),
+                "unit": d.unit,
+                "reason": d.reason,
+            }
+            for d in fit.degeneracies
+        ],
+    }
+
+
+def summary(comparison: Comparison) -> dict[str, Any]:
+    """The ``summary.json`` content (see the module docstring for the schema)."""
+    best = comparison.best
+    measured = comparison.measured
+    safety = assess(comparison.fixture)
+    return {
+        "schema": SCHEMA,
+        "schema_version": SCHEMA_VERSION,
+        "tool": {"name": "xcheck", "version": __version__},
+        "title": comparison.fixture.title,
+        "best": best.name if best else None,
+        "verdict": comparison.verdict,
+        "candidates": [_candidate_json(o) for o in comparison.outcomes],
+        "measured": measured.to_json(),
+        "loop_findings": list(comparison.loop_findings),
+        "inputs": [{"role": i.role, "path": i.path, "sha256": i.sha256} for i in comparison.inputs],
+        "versions": versions(comparison),
+        "seeds": dict(comparison.seeds),
+        "safety": {
+            "max_volts": _finite(safety.max_volts),
+            "stored_energy_joules": _finite(safety.stored_energy_joules),
+            "hazardous": safety.hazardous,
+        },
+    }
+
+
+def _pct(value: float | None) -> str:
+    return "n/a" if value is None or not math.isfinite(value) else f"{100 * value:.3g} %"
+
+
+def _num(value: float | None, digits: int = 4) -> str:
+    return "n/a" if value is None or not math.isfinite(value) else f"{value:.{digits}g}"
+
+
+def markdown(comparison: Comparison, data: dict[str, Any]) -> str:
+    """The text of ``report.md``."""
+    fixture = comparison.fixture
+    safety = assess(fixture)
+    lines = [f"# xcheck report: {fixture.title}", ""]
+    if safety.hazardous:
+        lines += [f"> **Caution** ({'; '.join(safety.reasons)}). {CAUTION}", ""]
+    lines += ["## Verdict", "", comparison.verdict, "", "![Measured and every candidate](overlay.png)", ""]
+    lines += ["## Candidates, ranked by BIC", "",
+              "| rank | candidate | ΔBIC | evidence vs best | NRMSE (theory) | NRMSE (ngspice) | "
+              "series R | f_d | α | engines differ by | status |",
+              "|---:|---|---:|---|---:|---:|---:|---:|---:|---:|---|"]
+    for outcome, item in zip(comparison.outcomes, data["candidates"]):
+        ng = item["engines"]["ngspice"]
+        status = "failed: " + str(item["failure_reason"]) if item["failed"] else (
+            "engines disagree" if outcome.engines_disagree else "ok")
+        lines.append(
+            f"| {item['rank'] or '–'} | {item['name']} | {_num(item['delta_bic'], 3)} | "
+            f"{item['evidence']} | {_pct(item['nrmse'])} | {_pct(ng['nrmse'] if ng else None)} | "
+            f"{_eng(item['series_resistance_ohm'], 'ohm')} | {_eng(item['damped_frequency_hz'], 'Hz')} | "
+            f"{_num(item['neper_frequency_per_s'])} /s | {_pct(item['engine_disagreement'])} | {status} |"
+        )
+    lines += ["", "Evidence words follow Kass & Raftery (1995): ΔBIC < 2 not distinguishable, "
+              "2–6 positive, 6–10 strong, > 10 decisive. AIC and BIC use the effective sample count "
+              f"n_eff = {_num(comparison.observation.n_effective, 4)}.", ""]
+    lines += ["## Fitted values", "", "| candidate | value | fitted | ± standard error | start | note |",
+              "|---|---|---:|---:|---:|---|"]
+    for outcome in comparison.outcomes:
+        for value in outcome.fit.fitted:
+            note = "at a bound" if value.at_bound else ""
+            for group in outcome.fit.degeneracies:
+                if value.label in group.members:
+                    held = [m for m in group.members if m != value.label]
+                    shown = ", ".join(
+                        f"{m} held at {format_eng(outcome.fit.parameters.get(label_key(m), 0.0) or 0.0, group.unit or value.unit)}"
+                        for m in held)
+                    note = (f"only the {group.combination} with {', '.join(held)} is determined "
+                            f"({shown}); the ± applies to the {group.combination}")
+            lines.append(
+                f"| {outcome.name} | {value.label} | {format_eng(value.value, value.unit, 4)} | "
+                f"{format_eng(value.stderr, value.unit, 2)} | {format_eng(value.start, value.unit)} | {note} |"
+            )
+        for name, (value, stderr) in outcome.fit.nuisance.items():
+            unit = NUISANCE_UNITS.get(name, "")
+            shown = (f"{format_eng(value, unit, 4)} | {format_eng(stderr, unit, 2)}" if unit
+                     else f"{_num(value)} | {_num(stderr, 2)}")
+            lines.append(f"| {outcome.name} | {name} (nuisance) | {shown} | | |")
+    lines += ["", "Nuisance values, fitted in every candidate so that none loses to the instrument: "
+              "gain (probe attenuation and true initial voltage, 1 = as stated), offset (scope DC "
+              "offset, V), shift (error of the detected event time, s); for a peak table, amplitude "
+              "(1 = as predicted) and time_origin (s).", ""]
+    lines += ["## What this measurement cannot separate", ""]
+    any_group = False
+    for outcome in comparison.outcomes:
+        for group in outcome.fit.degeneracies:
+            any_group = True
+            value = (format_eng(group.value, group.unit) if group.combination == "sum"
+                     else _num(group.value))
+            lines.append(f"- **{outcome.name}**: {group.combination} of {', '.join(group.members)} "
+                         f"= {value}. {group.reason}.")
+    if not any_group:
+        lines.append("- Every fitted value is determined separately by this measurement.")
+    lines += ["", "## Measured ring-down", ""]
+    lines += _measured_lines(data["measured"])
+    lines += ["", "![Residuals per candidate](residuals.png)", "",
+              "![Envelope of the extrema](envelope.png)", ""]
+    lines += ["## Inputs", "", "| role | file | sha256 |", "|---|---|---|"]
+    for item in data["inputs"]:
+        lines.append(f"| {item['role']} | `{item['path']}` | `{item['sha256']}` |")
+    lines += ["", "## Versions and seeds", ""]
+    lines += [f"- {name}: {value}" for name, value in data["versions"].items()]
+    lines += [f"- seed {name}: {value}" for name, value in data["seeds"].items()] or []
+    if not data["seeds"]:
+        lines.append("- no random numbers were drawn for this report")
+    if not safety.hazardous:
+        lines += ["", "---", "", "Working with charged capacitors: " + CAUTION]
+    return "\n".join(lines) + "\n"
+
+
+def _eng(value: float | None, unit: str) -> str:
+    return "n/a" if value is None or not math.isfinite(value) else format_eng(value, unit, 4)
+
+
+_MEASURED_ROWS = (
+    ("damped_frequency_hz", "damped frequency f_d", "Hz"),
+    ("neper_frequency_per_s", "neper frequency α (decay rate)", "1/s"),
+    ("initial_volts", "voltage at the event", "V"),
+)
+
+
+def _measured_lines(measured: dict[str, Any]) -> list[str]:
+    lines = ["| quantity | value | ± standard error | Cramér-Rao bound |", "|---|---:|---:|---:|"]
+    for key, words, unit in _MEASURED_ROWS:
+        item = measured.get(key) or {}
+        crb = item.get("crb")
+        lines.append(f"| {words} | {_num(item.get('value'), 6)} {unit} | "
+                     f"{_num(item.get('stderr'), 3)} {unit} | "
+                     f"{_num(crb, 3) + ' ' + unit if crb is not None else 'n/a'} |")
+    alignment = measured.get("alignment")
+    if alignment:
+        lines += ["", f"- event at {_eng(alignment['event_time_s'], 's')} in the file's time base"
+                  f"{' (given by hand)' if alignment['manual'] else ''}; pre-event level "
+                  f"{_eng(alignment['baseline_volts'], 'V')}, noise {_eng(alignment['noise_rms_volts'], 'V')} RMS"]
+    lines += ["", f"- envelope is one exponential: {'yes' if measured.get('envelope_exponential') else 'no'}",
+              f"- flagged extrema (0-based, time order): {measured.get('flagged_extrema') or 'none'}"]
+    for finding in measured.get("notes", []) or measured.get("findings", []):
+        lines.append(f"- {finding}")
+    return lines
+
+
+def _is_previous_report(folder: Path) -> bool:
+    try:
+        data = json.loads((folder / "summary.json").read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return False
+    return isinstance(data, dict) and data.get("schema") == SCHEMA
+
+
+def write_report(comparison: Comparison, folder: str | Path) -> Path:
+    """Write report.md, the PNGs and summary.json into ``folder`` atomically.
+
+    Parameters
+    ----------
+    comparison
+        The result of :func:`xcheck.compare.run_comparison`.
+    folder
+        Target folder; created if missing, replaced only if it holds an earlier report.
+
+    Returns
+    -------
+    Path
+        The folder written.
+
+    Raises
+    ------
+    XcheckError
+        When ``folder`` exists and is not an earlier xcheck report (nothing is touched).
+    """
+    target = Path(folder)
+    if target.exists() and not (target.is_dir() and (not any(target.iterdir()) or _is_previous_report(target))):
+        raise XcheckError(
+            f"{target}: this folder exists and is not an earlier xcheck report (no xcheck "
+            "summary.json in it); nothing was written. Choose another --out folder or move it away."
+        )
+    target.parent.mkdir(parents=True, exist_ok=True)
+    staging = Path(tempfile.mkdtemp(prefix=f".{target.name}.", dir=target.parent))
+    try:
+        data = summary(comparison)
+        _write_figures(comparison, staging)
+        (staging / "summary.json").write_text(json.dumps(data, indent=2, allow_nan=False) + "\n",
+                                              encoding="utf-8")
+        (staging / "report.md").write_text(markdown(comparison, data), encoding="utf-8")
+        old = None
+        if target.exists():
+            old = target.with_name(f".{target.name}.old")
+            if old.exists():
+                shutil.rmtree(old)
+            os.replace(target, old)
+        os.replace(staging, target)
+        if old is not None:
+            shutil.rmtree(old, ignore_errors=True)
+    except BaseException:
+        shutil.rmtree(staging, ignore_errors=True)
+        raise
+    return target
+
+
+def _write_figures(comparison: Comparison, folder: Path) -> None:
+    obs = comparison.observation
+    usable = [o for o in comparison.outcomes if not o.failed and o.theory_curve is not None]
+    curves = [(f"{o.name} (rank {o.ranked.rank})", o.theory_curve) for o in usable]
+    overlay_figure(folder / "overlay.png", obs.time, obs.voltage, curves,
+                   comparison.fixture.title, peaks=obs.kind == "peaks")
+    residuals = [(o.name, obs.voltage - o.theory_curve) for o in usable]
+    sigma = float(np.median(np.broadcast_to(np.asarray(obs.sigma, float), obs.voltage.shape)))
+    residual_figure(folder / "residuals.png", obs.time, residuals, sigma)
+    env = comparison.measured.envelope()
+    envelope_figure(folder / "envelope.png", env.times, env.amplitudes, env.flagged, env.alpha,
+                    env.amplitude0)
