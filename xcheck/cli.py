@@ -40,19 +40,35 @@ class _Parser(argparse.ArgumentParser):
         raise SystemExit(EXIT_BAD_INPUT)
 
 
-def build_parser() -> argparse.ArgumentParser:
-    """The argument parser with every available subcommand registered."""
+def _chosen_command(argv: Sequence[str]) -> str | None:
+    """The subcommand named in ``argv`` (its first word that is one), or None."""
+    for word in argv:
+        if word in COMMANDS:
+            return word
+        if not word.startswith("-"):
+            return None
+    return None
+
+
+def build_parser(argv: Sequence[str] | None = None) -> argparse.ArgumentParser:
+    """The argument parser.
+
+    Parameters
+    ----------
+    argv
+        The arguments about to be parsed. Only the subcommand they name is imported and
+        given its arguments, so ``xcheck --help`` and ``xcheck --version`` import none of
+        the numerical libraries. None registers every subcommand fully.
+    """
     parser = _Parser(prog="xcheck", description=__doc__.splitlines()[0])
     parser.add_argument("--version", action="version", version=f"xcheck {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    wanted = None if argv is None else _chosen_command(argv)
     for name, (module_name, help_text) in COMMANDS.items():
-        try:
-            module = importlib.import_module(f"xcheck.commands.{module_name}")
-        except ModuleNotFoundError as exc:
-            if exc.name == f"xcheck.commands.{module_name}":
-                continue  # not built yet
-            raise
         command = sub.add_parser(name, help=help_text, description=help_text)
+        if argv is not None and name != wanted:
+            continue
+        module = importlib.import_module(f"xcheck.commands.{module_name}")
         module.add_arguments(command)
         command.set_defaults(_run=module.run)
     return parser
@@ -73,7 +89,8 @@ def _paragraph(message: str) -> str:
 
 def main(argv: Sequence[str] | None = None) -> int:
     """Run xcheck with ``argv`` (default: the process arguments); return the exit status."""
-    parser = build_parser()
+    argv = list(sys.argv[1:] if argv is None else argv)
+    parser = build_parser(argv)
     try:
         args = parser.parse_args(argv)
     except SystemExit as exc:  # usage errors (2), --help and --version (0)

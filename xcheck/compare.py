@@ -26,14 +26,14 @@ from xcheck.fitting.candidates import (
     series_resistance,
 )
 from xcheck.circuit.expand import build_circuit
-from xcheck.engines.theory import SecondOrder, TheoryNotApplicable, characterise, simulate_theory
+from xcheck.engines.theory import SecondOrder, TheoryNotApplicable, characterise
 from xcheck.errors import SimulationError, XcheckError
-from xcheck.fitting.fit import FitResult, Observation, fit_candidate, peak_indices
+from xcheck.fitting.fit import FitResult, fit_candidate
+from xcheck.fitting.observation import Observation
 from xcheck.circuit.parameters import label_key
 from xcheck.fixture.model import Fixture
 from xcheck.measured import Measured, display_path, measure
 from xcheck.fitting.rank import Ranked, rank_by_bic
-from xcheck.ringdown import estimate_ringdown
 from xcheck.values import format_eng
 
 #: Engines agree to about 1e-4 of the amplitude (tested); beyond 1e-3 it is a deck,
@@ -244,7 +244,7 @@ def _evaluate(
         try:
             ngspice_curve, disagreement = _ngspice_curve(circuit, fit, obs)
             ngspice_metrics = _metrics("ngspice", obs, ngspice_curve, fit, measured,
-                                       _ring_of(obs, ngspice_curve))
+                                       obs.ring(ngspice_curve))
         except SimulationError as exc:
             notes.append(f"ngspice: {exc}")
     return CandidateOutcome(
@@ -267,76 +267,8 @@ def _ngspice_curve(circuit, fit: FitResult, obs: Observation) -> tuple[np.ndarra
     difference from theory relative to the prediction's amplitude."""
     from xcheck.engines.ngspice import simulate_ngspice
 
-    if obs.kind == "trace":
-        shift = fit.nuisance["shift"][0]
-        times = np.maximum(obs.time - shift, 0.0)
-        stop = float(times[-1]) * 1.0001
-        wave = simulate_ngspice(circuit, stop_time=stop)
-        raw = wave.at(times)
-        theory = simulate_theory(circuit, times).probe_voltage
-        gain = fit.nuisance["gain"][0]
-        amplitude = float(np.max(np.abs(theory))) or 1.0
-        offset = fit.nuisance["offset"][0]
-        return gain * raw + offset, float(np.max(np.abs(raw - theory)) / amplitude)
-    # Peak table: ngspice's turning points, numbered from the event as the fit numbers
-    # the readings, scaled by the fitted amplitude.
-    second = characterise(circuit)
-    index = peak_indices(obs, circuit.response)
-    first = int(index[0])
-    half = math.pi / second.omega_d
-    count = int(index.max()) + 1
-    wave = simulate_ngspice(circuit, stop_time=(count + 0.5) * half)
-    t_theory = np.arange(count) * half
-    _, v_ng = _extrema_near(wave.time, wave.probe_voltage, t_theory, half / 4)
-    if first == 0:
-        v_ng[0] = float(wave.probe_voltage[0])  # the event itself: the first sample
-    theory_wave = simulate_theory(circuit, t_theory).probe_voltage
-    amplitude = float(np.max(np.abs(theory_wave))) or 1.0
-    scale = fit.nuisance["amplitude"][0]
-    return scale * v_ng[index], float(np.max(np.abs(v_ng - theory_wave)) / amplitude)
-
-
-def _extrema_near(time: np.ndarray, volts: np.ndarray, targets: np.ndarray,
-                  halfwidth: float) -> tuple[np.ndarray, np.ndarray]:
-    """The extremum of ``volts`` within ``halfwidth`` of each target time, refined by a
-    parabola through the largest-magnitude sample and its neighbours."""
-    out_t = np.empty(targets.size)
-    out_v = np.empty(targets.size)
-    for i, target in enumerate(targets):
-        window = np.flatnonzero(np.abs(time - target) <= halfwidth)
-        if window.size == 0:
-            out_t[i], out_v[i] = target, float(np.interp(target, time, volts))
-            continue
-        j = window[np.argmax(np.abs(volts[window]))]
-        out_t[i], out_v[i] = time[j], volts[j]
-        if 0 < j < time.size - 1:
-            t3, v3 = time[j - 1:j + 2], volts[j - 1:j + 2]
-            a, b, c = np.polyfit(t3 - t3[1], v3, 2)
-            if a != 0 and abs(-b / (2 * a)) <= (t3[2] - t3[0]):
-                dt = -b / (2 * a)
-                out_t[i], out_v[i] = t3[1] + dt, c - b * b / (4 * a)
-    return out_t, out_v
-
-
-def _ring_of(obs: Observation, curve: np.ndarray) -> tuple[float, float] | None:
-    """f_d (Hz) and alpha (1/s) of an engine's own waveform, estimated by the same
-    ring-down estimator as the measurement (noise-free, so its errors are negligible);
-    None for peak tables or when the waveform does not ring."""
-    if obs.kind != "trace":
-        return None
-    amplitude = float(np.max(np.abs(curve - np.mean(curve)))) or 1.0
-    try:
-        est = estimate_ringdown(obs.time, curve, noise_sigma=1e-6 * amplitude)
-    except (XcheckError, ValueError, np.linalg.LinAlgError):
-        return None
-    return est.damped_frequency.value, est.neper_frequency.value
-
-
-def event_size(measured: Measured) -> float:
-    """Size of the event (V) that NRMSE is relative to: the swing from the value at the
-    event to the level the ring settles at (V0 for a ring-down, the step for a step)."""
-    est = measured.estimate
-    return abs(est.initial_volts.value - est.offset.value)
+    return obs.engine_curve(circuit, fit.nuisance,
+                            lambda stop: simulate_ngspice(circuit, stop_time=stop))
 
 
 def _metrics(engine: str, obs: Observation, curve: np.ndarray | None, fit: FitResult,
@@ -345,27 +277,20 @@ def _metrics(engine: str, obs: Observation, curve: np.ndarray | None, fit: FitRe
     if curve is None:
         return None
     error = obs.voltage - curve
-    sigma = np.broadcast_to(np.asarray(obs.sigma, float), error.shape)
-    n = error.size
     rmse = float(np.sqrt(np.mean(error**2)))
-    chi2 = float(np.sum((error / sigma) ** 2))
-    n_eff = fit.n_effective
-    mean_square = chi2 / n
     if engine == "theory":
         aic, bic = fit.aic, fit.bic
-    elif obs.kind == "trace":
-        aic = n_eff * math.log(mean_square) + 2 * fit.k
-        bic = n_eff * math.log(mean_square) + fit.k * math.log(n_eff)
     else:
-        # Voltages only (ngspice's extremum times are not refitted): comparable between
-        # candidates evaluated by ngspice, not with the closed-form BIC.
-        aic = chi2 + 2 * fit.k
-        bic = chi2 + fit.k * math.log(n)
+        # For a peak table these are voltages only (ngspice's extremum times are not
+        # refitted): comparable between candidates evaluated by ngspice, not with the
+        # closed-form BIC.
+        chi2 = float(np.sum((error / obs.sigmas) ** 2))
+        _, aic, bic = obs.criteria(chi2, error.size, fit.k)
     f_err = a_err = float("nan")
     if ring is not None:
         f_err = ring[0] - measured.damped_frequency_hz.value
         a_err = ring[1] - measured.neper_frequency_per_s.value
-    amplitude = event_size(measured) or float(np.ptp(obs.voltage)) or 1.0
+    amplitude = measured.event_size or float(np.ptp(obs.voltage)) or 1.0
     return EngineMetrics(engine, rmse, rmse / amplitude, float(np.max(np.abs(error))),
                          f_err, a_err, float(aic), float(bic))
 

@@ -2,21 +2,23 @@
 
 :func:`measure` turns a scope export or a peak table into a :class:`Measured`: the
 aligned samples (event at t = 0), the ring-down estimate with its uncertainties and
-envelope diagnostics, the alignment findings, and the :class:`~xcheck.fitting.fit.Observation`
-candidates are fitted to.
+envelope diagnostics, the alignment findings, and the
+:class:`~xcheck.fitting.observation.Observation` candidates are fitted to. A scope export
+becomes a :class:`MeasuredTrace`, a peak table a :class:`MeasuredPeaks`.
 """
 
 from __future__ import annotations
 
 import math
+from abc import ABC, abstractmethod
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import Any, ClassVar
 
 import numpy as np
 
 from xcheck.capture.align import Alignment, align_trace
-from xcheck.fitting.fit import Observation
+from xcheck.fitting.observation import Observation, PeakObservation, TraceObservation
 from xcheck.fixture.model import Fixture
 from xcheck.ringdown import RingdownEstimate, estimate_from_peaks, estimate_ringdown
 from xcheck.ringdown.peaks import decimal_resolution, rounded_time_sigma
@@ -51,13 +53,13 @@ class Envelope:
 
 
 @dataclass(frozen=True)
-class Measured:
+class Measured(ABC):
     """One measurement, aligned and estimated.
 
     Attributes
     ----------
     kind
-        ``"trace"`` or ``"peaks"``.
+        ``"trace"`` or ``"peaks"`` (a class attribute: the word summary.json uses).
     source
         The file as given.
     time, voltage
@@ -77,7 +79,7 @@ class Measured:
         Every remark, for the report's measured-side section.
     """
 
-    kind: str
+    kind: ClassVar[str]
     source: str
     time: np.ndarray
     voltage: np.ndarray
@@ -104,27 +106,18 @@ class Measured:
         """Model value at the event (V) with standard error."""
         return self.estimate.initial_volts
 
+    @property
+    def event_size(self) -> float:
+        """Size of the event (V) that NRMSE is relative to: the swing from the value at
+        the event to the level the ring settles at (V0 for a ring-down, the step for a
+        step). Measured, unlike the engines' reference voltage (the circuit's largest
+        stated voltage, which sets their accuracy target)."""
+        est = self.estimate
+        return abs(est.initial_volts.value - est.offset.value)
+
+    @abstractmethod
     def observation(self, max_points: int = 20_000) -> Observation:
         """What candidates are fitted to, decimated evenly to at most ``max_points``."""
-        period = 1.0 / self.estimate.damped_frequency.value
-        if self.kind == "peaks":
-            sigma = (self.uncertainty if self.uncertainty is not None
-                     else np.full(self.voltage.shape, self.estimate.noise_sigma))
-            return Observation("peaks", self.time, self.voltage, sigma, float(self.time.size),
-                               period, time_sigma=_time_scatter(self.time, period,
-                                                             self.time_resolution))
-        alpha = max(self.estimate.neper_frequency.value, 0.0)
-        end = self.time[-1]
-        if alpha > 0:
-            end = min(end, WINDOW_TIME_CONSTANTS / alpha)
-        window = (self.time <= end) & ~self.excluded
-        index = np.flatnonzero(window)
-        step = max(1, int(math.ceil(index.size / max_points)))
-        index = index[::step]
-        share = index.size * step / max(self.estimate.samples_used, 1)
-        n_eff = float(min(index.size, self.estimate.effective_samples * share))
-        return Observation("trace", self.time[index], self.voltage[index],
-                           float(self.estimate.noise_sigma), max(n_eff, 2.0), period)
 
     def envelope(self) -> Envelope:
         """Extrema magnitudes about the fitted offset, for the envelope figure."""
@@ -163,6 +156,48 @@ class Measured:
                 "manual": bool(a.manual),
             }
         return data
+
+
+@dataclass(frozen=True)
+class MeasuredTrace(Measured):
+    """A scope export, aligned so that the event is at t = 0."""
+
+    kind: ClassVar[str] = "trace"
+
+    def observation(self, max_points: int = 20_000) -> TraceObservation:
+        """The samples from the event to :data:`WINDOW_TIME_CONSTANTS` decay time
+        constants after it, clipped samples left out, decimated evenly to at most
+        ``max_points``; the effective sample count scaled to the share kept."""
+        period = 1.0 / self.estimate.damped_frequency.value
+        alpha = max(self.estimate.neper_frequency.value, 0.0)
+        end = self.time[-1]
+        if alpha > 0:
+            end = min(end, WINDOW_TIME_CONSTANTS / alpha)
+        window = (self.time <= end) & ~self.excluded
+        index = np.flatnonzero(window)
+        step = max(1, int(math.ceil(index.size / max_points)))
+        index = index[::step]
+        share = index.size * step / max(self.estimate.samples_used, 1)
+        n_eff = float(min(index.size, self.estimate.effective_samples * share))
+        return TraceObservation(self.time[index], self.voltage[index],
+                                float(self.estimate.noise_sigma), period, max(n_eff, 2.0))
+
+
+@dataclass(frozen=True)
+class MeasuredPeaks(Measured):
+    """A table of extrema read off cursors; its time origin is its first reading."""
+
+    kind: ClassVar[str] = "peaks"
+
+    def observation(self, max_points: int = 20_000) -> PeakObservation:
+        """Every reading (a table is never decimated; ``max_points`` is not used), with
+        the stated uncertainties or else the estimate's noise, and the scatter of the
+        extremum times."""
+        period = 1.0 / self.estimate.damped_frequency.value
+        sigma = (self.uncertainty if self.uncertainty is not None
+                 else np.full(self.voltage.shape, self.estimate.noise_sigma))
+        return PeakObservation(self.time, self.voltage, sigma, period,
+                               time_sigma=_time_scatter(self.time, period, self.time_resolution))
 
 
 def _finite(value: float) -> float | None:
@@ -231,10 +266,10 @@ def measure(
         estimate = estimate_from_peaks(table.time, table.voltage, table.uncertainty,
                                        time_resolution=table.time_resolution,
                                        voltage_resolution=table.voltage_resolution)
-        return Measured("peaks", str(peaks), table.time - table.time[0], table.voltage,
-                        np.zeros(table.time.size, bool), table.uncertainty, estimate, None,
-                        _envelope_findings(estimate), tuple(estimate.envelope.findings),
-                        table.time_resolution)
+        return MeasuredPeaks(str(peaks), table.time - table.time[0], table.voltage,
+                             np.zeros(table.time.size, bool), table.uncertainty, estimate, None,
+                             _envelope_findings(estimate), tuple(estimate.envelope.findings),
+                             table.time_resolution)
     raw = read_trace(trace, column=column)
     aligned, alignment = align_trace(raw, event_time=event_time, expect=fixture.response,
                                      expected_sign=_expected_sign(fixture))
@@ -260,8 +295,8 @@ def measure(
         )
     notes.extend(estimate.envelope.findings)
     findings.extend(_envelope_findings(estimate))
-    return Measured("trace", str(trace), aligned.time, aligned.voltage, excluded, None, estimate,
-                    alignment, tuple(findings), tuple(notes))
+    return MeasuredTrace(str(trace), aligned.time, aligned.voltage, excluded, None, estimate,
+                         alignment, tuple(findings), tuple(notes))
 
 
 def _envelope_findings(estimate: RingdownEstimate) -> tuple[str, ...]:

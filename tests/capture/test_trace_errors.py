@@ -268,7 +268,7 @@ def test_command_line_reports_a_trace_error_with_exit_status_2(tmp_path, monkeyp
     """The dispatcher's handling of XcheckError, exercised with a stand-in subcommand."""
     path = write(tmp_path, with_row(5, "5.000000e-06,abc"))
 
-    def build_parser() -> argparse.ArgumentParser:
+    def build_parser(argv=None) -> argparse.ArgumentParser:
         parser = argparse.ArgumentParser(prog="xcheck")
         parser.add_argument("trace")
         parser.set_defaults(_run=lambda args: (read_trace(args.trace), 0)[1])

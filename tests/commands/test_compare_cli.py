@@ -7,6 +7,8 @@ Exit-status convention (common practice for command-line checkers, no source):
 from __future__ import annotations
 
 import json
+import os
+import stat
 
 import pytest
 
@@ -75,6 +77,15 @@ def test_a_previous_report_is_replaced(tmp_path, fixture_path):
     assert main(args) == 0
     assert main(args) == 0
     assert (out / "summary.json").exists()
+    # A colleague can read it: the folder and its files get the modes that os.mkdir and
+    # open() give under the same umask (the standard library as reference).
+    reference = tmp_path / "plain"
+    os.mkdir(reference)
+    (reference / "f").write_text("x", encoding="utf-8")
+    assert stat.S_IMODE(out.stat().st_mode) == stat.S_IMODE(reference.stat().st_mode)
+    for name in ("summary.json", "report.md", "overlay.png"):
+        assert stat.S_IMODE((out / name).stat().st_mode) == stat.S_IMODE(
+            (reference / "f").stat().st_mode)
 
 
 @pytest.mark.parametrize(

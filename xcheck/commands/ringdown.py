@@ -1,10 +1,9 @@
 """``xcheck ringdown TRACE``: frequency and decay of a measured ring-down, with uncertainties.
 
-A waveform file is read (:func:`xcheck.capture.scope_csv.read_trace`), the event found and the time
-axis moved to it (:func:`xcheck.capture.align.align_trace`), clipped samples left out, and the
-ring-down estimated (:func:`xcheck.ringdown.estimate_ringdown`) with the pre-event noise
-as the noise level. With ``--peaks`` the file is a table of extrema read off cursors
-(:func:`xcheck.capture.peak_table.read_peaks`, :func:`xcheck.ringdown.estimate_from_peaks`).
+The file is read, aligned and estimated by :func:`xcheck.ringdown.from_file.ringdown_from_file`
+(with ``--peaks`` it is a table of extrema read off cursors); the figure is
+:func:`xcheck.report.figures.ringdown_figure`. This module holds the arguments, the calls
+and the printing.
 
 Prints the table (value +- standard error, Cramér-Rao bound) in engineering notation,
 the envelope findings and notes; writes a PNG (the trace with the fitted model; the
@@ -22,10 +21,17 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from xcheck.atomic import PNG_METADATA, png_is_ours, refuse_foreign, write_atomically
+from xcheck.atomic import (
+    json_is_ours,
+    png_is_ours,
+    refuse_foreign,
+    write_file_atomically,
+    write_text_atomically,
+)
 from xcheck.errors import ValueParseError, XcheckError
+from xcheck.report.figures import ringdown_figure
 from xcheck.ringdown import DerivedCircuit, Estimate, RingdownEstimate, derive_circuit
-from xcheck.ringdown import estimate_from_peaks, estimate_ringdown
+from xcheck.ringdown.from_file import FileRingdown, ringdown_from_file
 from xcheck.values import format_eng, parse_value
 
 if TYPE_CHECKING:
@@ -34,6 +40,8 @@ if TYPE_CHECKING:
 #: Folder (relative to the current directory) the PNG goes to without ``--out``.
 DEFAULT_ROOT = Path("reports")
 PNG_NAME = "ringdown.png"
+#: Keys an earlier ``--json`` result holds: only such a file is replaced.
+JSON_KEYS = ("damped_frequency_hz", "neper_frequency_per_s")
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -136,60 +144,16 @@ def run(args: argparse.Namespace) -> int:
         raise XcheckError(
             "--capacitance-stderr/--inductance-stderr: expected zero or a positive value"
         )
-    context: list[str] = []
-    if args.peaks:
-        from xcheck.capture.peak_table import read_peaks
-
-        table = read_peaks(args.trace)
-        estimate = estimate_from_peaks(
-            table.time, table.voltage, table.uncertainty, source=table.source,
-            time_resolution=table.time_resolution, voltage_resolution=table.voltage_resolution,
-        )
-        measured = (np.asarray(table.time), np.asarray(table.voltage), None)
-        context.append(f"peak table {table.source}: {len(table)} extrema")
-        alignment_json = None
-    else:
-        from xcheck.capture.align import align_trace
-        from xcheck.capture.scope_csv import read_trace
-
-        trace = read_trace(
-            args.trace,
-            column=_index_or_name(args.column),
-            time_column=_index_or_name(args.time_column),
-        )
-        aligned, alignment = align_trace(trace, event_time=event_time, expect=args.expect)
-        noise = (
-            alignment.noise_rms
-            if math.isfinite(alignment.noise_rms) and alignment.noise_rms > 0
-            else None
-        )
-        estimate = estimate_ringdown(
-            aligned.time,
-            aligned.voltage,
-            noise_sigma=noise,
-            exclude=aligned.clipped,
-            modes=args.modes,
-            resolution=trace.resolution,
-            source=trace.source,
-        )
-        measured = (
-            np.asarray(aligned.time),
-            np.asarray(aligned.voltage),
-            np.asarray(aligned.clipped),
-        )
-        context += _alignment_lines(
-            trace.source, trace.column, alignment, int(np.sum(aligned.clipped))
-        )
-        alignment_json = {
-            "event_time_s": alignment.event_time,
-            "baseline_volts": alignment.baseline,
-            "noise_rms_volts": alignment.noise_rms,
-            "droop_volts_per_s": alignment.droop_per_s,
-            "inverted": bool(alignment.inverted),
-            "manual": bool(alignment.manual),
-            "pre_event_samples": int(alignment.pre_event_samples),
-            "notes": list(alignment.notes),
-        }
+    result = ringdown_from_file(
+        args.trace,
+        peaks=args.peaks,
+        column=_index_or_name(args.column),
+        time_column=_index_or_name(args.time_column),
+        event_time=event_time,
+        expect=args.expect,
+        modes=args.modes,
+    )
+    estimate = result.estimate
     derived = None
     if capacitance is not None or inductance is not None:
         derived = derive_circuit(
@@ -203,31 +167,31 @@ def run(args: argparse.Namespace) -> int:
     refuse_foreign(png, png_is_ours, "--out")
     if args.json is not None:
         refuse_foreign(args.json, _json_is_ours, "--json")
-    write_atomically(png, lambda tmp: write_figure(tmp, estimate, *measured, title=str(args.trace)))
+    write_file_atomically(
+        png,
+        lambda tmp: ringdown_figure(
+            tmp, estimate, result.time, result.voltage, result.excluded, title=str(args.trace)
+        ),
+    )
     written = [png]
     if args.json is not None:
-        data = estimate.to_json()
-        data["source"] = str(args.trace)
-        if alignment_json is not None:
-            data["alignment"] = alignment_json
-        if derived is not None:
-            data["derived"] = derived.to_json()
-        text = json.dumps(_plain(data), indent=2, allow_nan=False)
-        write_atomically(args.json, lambda tmp: tmp.write_text(text + "\n", encoding="utf-8"))
+        text = json.dumps(result.to_json(derived), indent=2, allow_nan=False)
+        write_text_atomically(args.json, text + "\n", option="--json")
         written.append(args.json)
-    print(summary_text(estimate, derived, context, written))
+    print(summary_text(estimate, derived, _context_lines(result), written))
     return 0
 
 
-def _plain(data: object) -> object:
-    """JSON-safe copy: non-finite floats become null (JSON has no NaN or infinity)."""
-    if isinstance(data, dict):
-        return {k: _plain(v) for k, v in data.items()}
-    if isinstance(data, (list, tuple)):
-        return [_plain(v) for v in data]
-    if isinstance(data, float) and not math.isfinite(data):
-        return None
-    return data
+def _json_is_ours(path: Path) -> bool:
+    """True when ``path`` holds an earlier ``xcheck ringdown --json`` result."""
+    return json_is_ours(path, keys=JSON_KEYS)
+
+
+def _context_lines(result: FileRingdown) -> list[str]:
+    if result.alignment is None:
+        return [f"peak table {result.source_name}: {len(result.time)} extrema"]
+    clipped = int(np.sum(result.excluded))
+    return _alignment_lines(result.source_name, result.column, result.alignment, clipped)
 
 
 def _alignment_lines(source: str, column: str, a: Alignment, clipped: int) -> list[str]:
@@ -337,145 +301,3 @@ def summary_text(
         lines.append("warning: the fit did not converge cleanly; treat the numbers with doubt")
     lines.append("wrote " + ", ".join(str(p) for p in written))
     return "\n".join(lines)
-
-
-def write_figure(
-    path: Path,
-    estimate: RingdownEstimate,
-    time: np.ndarray,
-    voltage: np.ndarray,
-    excluded: np.ndarray | None,
-    *,
-    title: str,
-) -> None:
-    """Two panels: the data with the fitted model; the extrema's envelope on a log axis.
-
-    Readable in greyscale: the data are light grey, the model a black dashed line, used
-    extrema open circles, flagged extrema filled black triangles with their index,
-    excluded (clipped) samples small crosses.
-    """
-    import matplotlib
-
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    from xcheck.report.figures import time_scale
-
-    et = np.asarray(estimate.extrema_time)
-    span = _shown_span(estimate, time, et)
-    factor, prefix = time_scale(max(span, 1e-15))
-    fig, (top, bottom) = plt.subplots(
-        2, 1, figsize=(8.0, 6.4), dpi=110, gridspec_kw={"height_ratios": [3, 2]}
-    )
-    peaks = excluded is None
-    dense = np.linspace(min(0.0, float(np.min(time))), span, 2000)
-    if not peaks:  # a peak table's readings are drawn below as the extrema
-        top.plot(time * factor, voltage, color="#9a9a9a", linewidth=1.4, label="measured")
-        if excluded.any():
-            top.plot(
-                time[excluded] * factor,
-                voltage[excluded],
-                linestyle="none",
-                marker="x",
-                markersize=3,
-                color="#555555",
-                label="excluded (clipped)",
-            )
-    top.plot(
-        dense * factor,
-        estimate.model(dense),
-        color="black",
-        linestyle=(0, (3, 2)),
-        linewidth=0.9,
-        label="fitted model",
-    )
-    top.axhline(estimate.offset.value, color="#777777", linestyle=":", linewidth=0.8)
-    top.set_ylabel("voltage (V)")
-    top.set_title(
-        f"{title}: f_d = {format_eng(estimate.damped_frequency.value, 'Hz', 5)}, "
-        f"alpha = {format_eng(estimate.neper_frequency.value, 'Np/s', 4)}",
-        fontsize=9,
-    )
-    ev = np.abs(np.asarray(estimate.extrema_value) - estimate.offset.value)
-    flagged = np.zeros(len(et), dtype=bool)
-    flagged[estimate.flagged_extrema] = True
-    for axis, values in ((top, np.asarray(estimate.extrema_value)), (bottom, ev)):
-        axis.plot(
-            et[~flagged] * factor,
-            values[~flagged],
-            linestyle="none",
-            marker="o",
-            markersize=5,
-            markerfacecolor="none",
-            markeredgecolor="black",
-            label="readings used" if peaks else "extrema used",
-        )
-        if flagged.any():
-            axis.plot(
-                et[flagged] * factor,
-                values[flagged],
-                linestyle="none",
-                marker="^",
-                markersize=8,
-                color="black",
-                label="flagged readings" if peaks else "flagged extrema",
-            )
-    for i in estimate.flagged_extrema:
-        bottom.annotate(
-            f"#{i}", (et[i] * factor, ev[i]), textcoords="offset points", xytext=(6, 4), fontsize=8
-        )
-    line_t = np.linspace(0.0, span, 200)
-    bottom.plot(
-        line_t * factor,
-        estimate.envelope_at(line_t),
-        color="black",
-        linewidth=1.0,
-        label="fitted envelope",
-    )
-    if estimate.alternate is not None:
-        which = "with flagged" if estimate.excludes_flagged else "without flagged"
-        bottom.plot(
-            line_t * factor,
-            estimate.alternate.envelope_at(line_t),
-            color="#666666",
-            linestyle=(0, (4, 2)),
-            linewidth=1.0,
-            label=f"envelope {which}",
-        )
-    bottom.set_yscale("log")
-    if len(ev) and np.all(ev > 0):
-        bottom.set_ylim(ev.min() / 3.0, ev.max() * 3.0)
-    bottom.set_ylabel("|extremum - offset| (V)")
-    bottom.set_xlabel(f"time from the event ({prefix}s)" if not peaks else f"time ({prefix}s)")
-    for axis in (top, bottom):
-        axis.set_xlim(min(0.0, float(np.min(time))) * factor, span * factor)
-        axis.grid(True, which="major", linestyle=(0, (1, 3)), linewidth=0.6, color="#9a9a9a")
-        axis.legend(fontsize=7, frameon=False, loc="upper right")
-        axis.tick_params(labelsize=8)
-    fig.tight_layout()
-    fig.savefig(path, format="png", metadata=PNG_METADATA)
-    plt.close(fig)
-
-
-def _shown_span(estimate: RingdownEstimate, time: np.ndarray, extrema_time: np.ndarray) -> float:
-    """End of the time axis shown: the ringing and a little after, not a long quiet tail."""
-    end = float(np.max(time)) if len(time) else 1.0
-    if not len(extrema_time):
-        return end
-    alpha = estimate.neper_frequency.value
-    period = 2.0 * math.pi / estimate.angular_frequency.value
-    ring = float(extrema_time[-1]) + 3.0 * period
-    if alpha > 0 and estimate.noise_sigma > 0:
-        size = float(estimate.envelope_at(np.array([0.0]))[0])
-        if size > estimate.noise_sigma:
-            ring = max(ring, math.log(size / estimate.noise_sigma) / alpha * 1.2)
-    return min(end, ring)
-
-
-def _json_is_ours(path: Path) -> bool:
-    """True when ``path`` holds an earlier ``xcheck ringdown --json`` result."""
-    try:
-        data = json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, ValueError):
-        return False
-    return isinstance(data, dict) and "damped_frequency_hz" in data and "neper_frequency_per_s" in data

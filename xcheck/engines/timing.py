@@ -26,7 +26,7 @@ import numpy as np
 import scipy.linalg
 
 from xcheck.circuit.model import Circuit
-from xcheck.engines.statespace import natural_modes, state_space
+from xcheck.engines.statespace import NaturalModes, natural_modes, state_space
 
 #: Accuracy aimed at: largest error in the probe voltage relative to the reference
 #: voltage (initial capacitor voltage or step).
@@ -100,7 +100,7 @@ def transient_settings(circuit: Circuit, *, stop_time: float | None = None) -> T
         raise ValueError(f"stop_time must be a positive number of seconds, got {stop_time!r}")
     modes = natural_modes(circuit)
     poles = modes.poles
-    reference = _reference_voltage(circuit, modes.initial, modes.steady)
+    reference = reference_voltage(circuit, modes)
     notes: list[str] = []
     if poles.size == 0:
         stop = stop_time if stop_time is not None else 1e-6
@@ -127,11 +127,17 @@ def transient_settings(circuit: Circuit, *, stop_time: float | None = None) -> T
     return TransientSettings(max_step, stop, max_step, notes=tuple(notes))
 
 
-def _reference_voltage(circuit: Circuit, initial: float, steady: float) -> float:
-    """The voltage the accuracy target is relative to: the largest initial capacitor
-    voltage, source voltage, initial or final probe voltage, or (for a circuit started
-    by an inductor current alone) the peak of the probe voltage."""
-    candidates = [abs(initial), abs(steady)]
+def reference_voltage(circuit: Circuit, modes: NaturalModes | None = None) -> float:
+    """The voltage an engine's accuracy is relative to (its target here, the engines'
+    difference in ``xcheck simulate``).
+
+    The largest initial capacitor voltage, source voltage, initial or final probe
+    voltage, or (for a circuit started by an inductor current alone) the peak of the
+    probe voltage; 1 V when all are zero. ``modes``: the circuit's natural modes, when
+    already known.
+    """
+    modes = natural_modes(circuit) if modes is None else modes
+    candidates = [abs(modes.initial), abs(modes.steady)]
     for element in circuit.elements:
         if element.kind == "C" and element.initial is not None:
             candidates.append(abs(element.initial))
@@ -140,7 +146,7 @@ def _reference_voltage(circuit: Circuit, initial: float, steady: float) -> float
     reference = max(candidates)
     if reference > 0:
         return reference
-    peak = float(np.max(np.abs(_probe_samples(circuit, _default_stop(natural_modes(circuit).poles)))))
+    peak = float(np.max(np.abs(_probe_samples(circuit, _default_stop(modes.poles)))))
     return peak if peak > 0 else 1.0
 
 

@@ -10,10 +10,14 @@ relative change) or a *ratio* (equal relative change).
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from typing import Sequence
 
 import numpy as np
+
+from xcheck.circuit.parameters import ParameterSet, label_key
+from xcheck.fitting.stats import correlation_from_covariance, covariance_from_jacobian
 
 #: Singular-value ratio below which a direction counts as undetermined. Finite-difference
 #: Jacobians carry relative noise of about sqrt(machine epsilon) ~ 1e-8, so exact
@@ -24,6 +28,11 @@ HIGH_CORRELATION = 0.99
 #: Correlation beyond which two values are treated as one combination: at 0.999 the
 #: standard error of each is over 20 times that of their best-determined combination.
 INSEPARABLE_CORRELATION = 0.999
+#: Groups whose determined combination has a physical meaning; only these are collapsed
+#: (one member kept free, the others held). A merely correlated "combination" is
+#: reported but every member stays free: holding one at a poor start value would bias
+#: the rest.
+COLLAPSIBLE = ("sum", "product", "ratio")
 
 
 @dataclass(frozen=True)
@@ -154,9 +163,11 @@ def find_degeneracies(
     shown = [k for k, column in enumerate(live) if int(column) not in hidden]
     if len(shown) >= 2:
         subset = np.column_stack([normalised[:, shown], extra])
-        cov = np.linalg.pinv(subset.T @ subset)[: len(shown), : len(shown)]
-        d = np.sqrt(np.clip(np.diag(cov), 1e-300, None))
-        corr = cov / np.outer(d, d)
+        # Columns of unit norm already; a direction is dropped where numpy's default
+        # pseudo-inverse of J^T J (cut-off 1e-15 of its largest eigenvalue) drops it.
+        cov = covariance_from_jacobian(subset, rcond=math.sqrt(1e-15), scale_columns=False,
+                                       undetermined="pseudo-inverse")
+        corr = correlation_from_covariance(cov[: len(shown), : len(shown)])
         for a in range(len(shown)):
             for b in range(a + 1, len(shown)):
                 if abs(corr[a, b]) > INSEPARABLE_CORRELATION:
@@ -192,6 +203,75 @@ def _join(member_sets: list[set[int]], members: set[int]) -> None:
         members |= other
         member_sets.remove(other)
     member_sets.append(members)
+
+
+def merge_groups(groups: tuple[Degeneracy, ...]) -> tuple[Degeneracy, ...]:
+    """Join groups of the same kind that share a member (a sum joined with a sum stays a
+    sum); a merely correlated pair stays its own entry."""
+    merged: list[Degeneracy] = []
+    for group in groups:
+        members = list(group.members)
+        kinds = {group.combination}
+        units = {group.unit}
+        keep = []
+        for other in merged:
+            same_kind = other.combination == group.combination
+            if set(members) & set(other.members) and same_kind:
+                members = list(dict.fromkeys(list(other.members) + members))
+                kinds.add(other.combination)
+                units.add(other.unit)
+            else:
+                keep.append(other)
+        kind = kinds.pop() if len(kinds) == 1 else "combination"
+        unit = units.pop() if len(units) == 1 else ""
+        keep.append(Degeneracy(tuple(members), kind, float("nan"), float("nan"), unit,
+                               reason_for(kind, tuple(members)), group.correlation))
+        merged = keep
+    return tuple(merged)
+
+
+def evaluate_groups(groups: Sequence[Degeneracy], fitted: Sequence,
+                    parameters: ParameterSet | None) -> tuple[Degeneracy, ...]:
+    """Each group with its determined combination evaluated at a refit in which only
+    its first member was free.
+
+    Parameters
+    ----------
+    groups
+        The groups, value and stderr not yet known.
+    fitted
+        The refit's fitted values (with ``label``, ``value``, ``stderr``); untyped to
+        avoid an import cycle.
+    parameters
+        The refit's parameter set, holding every member's value.
+
+    Returns
+    -------
+    tuple of Degeneracy
+        A sum's value is the members' sum, with the free member's standard error; a
+        product's the members' product, with the free member's relative standard
+        error; anything else NaN.
+    """
+    values = {f.label: f for f in fitted}
+    out = []
+    for group in groups:
+        members = list(group.members)
+        first = values.get(members[0])
+        stderr = first.stderr if first is not None else float("nan")
+        member_values = ([parameters.get(label_key(m), 0.0) or 0.0 for m in members]
+                         if parameters else [])
+        if group.combination == "sum":
+            combined = float(sum(member_values))
+        elif group.combination == "product":
+            combined = float(np.prod(member_values))
+            stderr = combined * (first.stderr / first.value) if first and first.value else float("nan")
+        else:
+            combined = float("nan")
+        out.append(
+            Degeneracy(group.members, group.combination, combined, stderr, group.unit, group.reason,
+                       group.correlation)
+        )
+    return tuple(out)
 
 
 def reason_for(kind: str, labels: tuple[str, ...]) -> str:

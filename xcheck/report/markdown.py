@@ -29,10 +29,7 @@ from __future__ import annotations
 
 import json
 import math
-import os
 import platform
-import shutil
-import tempfile
 from pathlib import Path
 from typing import Any
 
@@ -40,7 +37,7 @@ import numpy as np
 
 from xcheck import __version__
 from xcheck.compare import CandidateOutcome, Comparison
-from xcheck.errors import XcheckError
+from xcheck.atomic import REPORT_HINT, report_folder_is_ours, write_folder_atomically
 from xcheck.report.figures import envelope_figure, overlay_figure, residual_figure
 from xcheck.circuit.parameters import label_key
 from xcheck.safety import CAUTION, assess
@@ -267,14 +264,6 @@ def _measured_lines(measured: dict[str, Any]) -> list[str]:
     return lines
 
 
-def _is_previous_report(folder: Path) -> bool:
-    try:
-        data = json.loads((folder / "summary.json").read_text(encoding="utf-8"))
-    except (OSError, ValueError):
-        return False
-    return isinstance(data, dict) and data.get("schema") == SCHEMA
-
-
 def write_report(comparison: Comparison, folder: str | Path) -> Path:
     """Write report.md, the PNGs and summary.json into ``folder`` atomically.
 
@@ -283,7 +272,8 @@ def write_report(comparison: Comparison, folder: str | Path) -> Path:
     comparison
         The result of :func:`xcheck.compare.run_comparison`.
     folder
-        Target folder; created if missing, replaced only if it holds an earlier report.
+        Target folder; created if missing, replaced only if it is empty or holds an
+        earlier report (:func:`xcheck.atomic.write_folder_atomically`).
 
     Returns
     -------
@@ -295,33 +285,17 @@ def write_report(comparison: Comparison, folder: str | Path) -> Path:
     XcheckError
         When ``folder`` exists and is not an earlier xcheck report (nothing is touched).
     """
-    target = Path(folder)
-    if target.exists() and not (target.is_dir() and (not any(target.iterdir()) or _is_previous_report(target))):
-        raise XcheckError(
-            f"{target}: this folder exists and is not an earlier xcheck report (no xcheck "
-            "summary.json in it); nothing was written. Choose another --out folder or move it away."
-        )
-    target.parent.mkdir(parents=True, exist_ok=True)
-    staging = Path(tempfile.mkdtemp(prefix=f".{target.name}.", dir=target.parent))
-    try:
+
+    def fill(staging: Path) -> None:
         data = summary(comparison)
         _write_figures(comparison, staging)
         (staging / "summary.json").write_text(json.dumps(data, indent=2, allow_nan=False) + "\n",
                                               encoding="utf-8")
         (staging / "report.md").write_text(markdown(comparison, data), encoding="utf-8")
-        old = None
-        if target.exists():
-            old = target.with_name(f".{target.name}.old")
-            if old.exists():
-                shutil.rmtree(old)
-            os.replace(target, old)
-        os.replace(staging, target)
-        if old is not None:
-            shutil.rmtree(old, ignore_errors=True)
-    except BaseException:
-        shutil.rmtree(staging, ignore_errors=True)
-        raise
-    return target
+
+    return write_folder_atomically(Path(folder), fill,
+                                   is_ours=lambda path: report_folder_is_ours(path, SCHEMA),
+                                   option="--out folder", hint=REPORT_HINT)
 
 
 def _write_figures(comparison: Comparison, folder: Path) -> None:
@@ -329,7 +303,7 @@ def _write_figures(comparison: Comparison, folder: Path) -> None:
     usable = [o for o in comparison.outcomes if not o.failed and o.theory_curve is not None]
     curves = [(f"{o.name} (rank {o.ranked.rank})", o.theory_curve) for o in usable]
     overlay_figure(folder / "overlay.png", obs.time, obs.voltage, curves,
-                   comparison.fixture.title, peaks=obs.kind == "peaks")
+                   comparison.fixture.title, peaks=obs.discrete)
     residuals = [(o.name, obs.voltage - o.theory_curve) for o in usable]
     sigma = float(np.median(np.broadcast_to(np.asarray(obs.sigma, float), obs.voltage.shape)))
     residual_figure(folder / "residuals.png", obs.time, residuals, sigma)

@@ -12,7 +12,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from xcheck.ringdown.nls import jtj_chunked, unit_covariance
+from xcheck.fitting.stats import covariance_from_jacobian
+from xcheck.ringdown.nls import jtj_chunked
 
 
 def fisher_information(jacobian: np.ndarray, sigma: float) -> np.ndarray:
@@ -23,7 +24,7 @@ def fisher_information(jacobian: np.ndarray, sigma: float) -> np.ndarray:
 
 def crb_covariance(jacobian: np.ndarray, sigma: float) -> np.ndarray:
     """Inverse Fisher information ``sigma^2 (J^T J)^-1`` (computed via an SVD of J)."""
-    return sigma**2 * unit_covariance(np.asarray(jacobian, dtype=float))
+    return sigma**2 * covariance_from_jacobian(np.asarray(jacobian, dtype=float))
 
 
 def damped_sinusoid_crb(time: np.ndarray, theta: np.ndarray, sigma: float) -> np.ndarray:

@@ -24,6 +24,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from xcheck.errors import TraceError
+from xcheck.fitting.stats import covariance_from_jacobian
 from xcheck.ringdown.crb import damped_sinusoid_crb
 from xcheck.ringdown.envelope import diagnose_envelope
 from xcheck.ringdown.extrema import (
@@ -44,7 +45,6 @@ from xcheck.ringdown.nls import (
     residual_correlation,
     sandwich_covariance,
     unblock,
-    unit_covariance,
 )
 from xcheck.ringdown.pencil import damped_pairs, matrix_pencil
 from xcheck.ringdown.result import (
@@ -411,7 +411,7 @@ def _fit(
             noise_source = "fit residuals (larger than the given noise level)"
     else:
         sigma, sigma_fit, noise_source = s_sample, s_fit, "fit residuals"
-    naive = sigma_fit**2 * unit_covariance(jac_fit)
+    naive = sigma_fit**2 * covariance_from_jacobian(jac_fit)
     cov_fit = _at_least(sandwich_covariance(jac_fit, rho, sigma_fit), naive)
     if n_eff_fit < 0.95 * len(tf):
         widen = np.sqrt(np.diag(cov_fit) / np.diag(naive))

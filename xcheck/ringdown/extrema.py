@@ -178,6 +178,58 @@ def find_extrema(
     return Extrema(arr[:, 0], arr[:, 1], arr[:, 2], arr[:, 3].astype(int))
 
 
+def parabola_vertex(c2: float, c1: float, c0: float, var_c1: float = 0.0) -> tuple[float, float]:
+    """Position and value of the vertex of ``c2 x^2 + c1 x + c0``.
+
+    ``x* = -c1 / (2 c2)`` and ``c0 - c1^2 / (4 c2)``; ``var_c1`` (the variance of a
+    fitted ``c1``) is taken out of ``c1^2``, which noise would otherwise inflate.
+    """
+    return -c1 / (2.0 * c2), c0 - (c1 * c1 - var_c1) / (4.0 * c2)
+
+
+def extrema_near(time: np.ndarray, volts: np.ndarray, targets: np.ndarray,
+                 halfwidth: float) -> tuple[np.ndarray, np.ndarray]:
+    """Turning points of a noise-free waveform (a simulator's) near expected times.
+
+    For each target time the largest-magnitude sample within ``halfwidth`` is taken and
+    refined by the parabola through it and its two neighbours (interpolation, not a
+    least-squares fit: there is no noise to average); the refinement is kept when its
+    vertex lies within the three samples' span. Where no sample lies within
+    ``halfwidth`` the waveform is interpolated linearly at the target.
+
+    Parameters
+    ----------
+    time, volts
+        The waveform (s, V); the time points need not be uniform.
+    targets
+        Expected times of the turning points (s).
+    halfwidth
+        Search half-width around each target (s).
+
+    Returns
+    -------
+    tuple of numpy.ndarray
+        Times (s) and values (V) of the turning points, one per target.
+    """
+    out_t = np.empty(targets.size)
+    out_v = np.empty(targets.size)
+    for i, target in enumerate(targets):
+        window = np.flatnonzero(np.abs(time - target) <= halfwidth)
+        if window.size == 0:
+            out_t[i], out_v[i] = target, float(np.interp(target, time, volts))
+            continue
+        j = window[np.argmax(np.abs(volts[window]))]
+        out_t[i], out_v[i] = time[j], volts[j]
+        if 0 < j < time.size - 1:
+            t3, v3 = time[j - 1:j + 2], volts[j - 1:j + 2]
+            a, b, c = np.polyfit(t3 - t3[1], v3, 2)
+            if a != 0:
+                dt, value = parabola_vertex(a, b, c)
+                if abs(dt) <= (t3[2] - t3[0]):
+                    out_t[i], out_v[i] = t3[1] + dt, value
+    return out_t, out_v
+
+
 def _refine(
     t: np.ndarray,
     v: np.ndarray,
@@ -215,12 +267,11 @@ def _refine(
             )
         if sign * c2 >= 0:
             break
-        vertex = -c1 / (2.0 * c2)
+        # The noise's share of c1^2 (its variance) is taken out of the vertex value:
+        # otherwise small extrema in noise come out systematically too large.
+        var_c1 = float(cov[1, 1]) * sigma**2
+        vertex, value = parabola_vertex(c2, c1, c0, var_c1)
         if abs(vertex) <= half:
-            # c0 - c1^2 / (4 c2), with the noise's share of c1^2 (its variance) taken
-            # out: otherwise small extrema in noise come out systematically too large.
-            var_c1 = float(cov[1, 1]) * sigma**2
-            value = c0 - (c1 * c1 - var_c1) / (4.0 * c2)
             grad = np.array([c1 * c1 / (4.0 * c2 * c2), -c1 / (2.0 * c2), 1.0])
             var = float(grad @ cov @ grad) * sigma**2
             return float(t[centre] + vertex * step), float(value), math.sqrt(max(var, 0.0))

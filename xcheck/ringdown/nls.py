@@ -9,18 +9,20 @@ The cosine/sine amplitudes (rather than amplitude and phase) keep the problem we
 conditioned; ``A = hypot(a, b)`` and ``phi = atan2(-b, a)`` give the usual
 ``A exp(-alpha t) cos(omega t + phi)`` form. The refinement is
 :func:`scipy.optimize.least_squares` with the analytic Jacobian; standard errors come from
-``s^2 (J^T J)^-1`` (ordinary least-squares asymptotics); with correlated residuals the
+``s^2 (J^T J)^-1`` (ordinary least-squares asymptotics,
+:func:`xcheck.fitting.stats.covariance_from_jacobian`); with correlated residuals the
 sandwich covariance (:func:`sandwich_covariance`) uses their autocorrelation up to the
 lag where it has died out (:func:`residual_correlation`, which also gives ``N_eff``).
 """
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 import numpy as np
 from scipy.optimize import least_squares
+
+from xcheck.fitting.stats import covariance_from_jacobian
 
 
 def mode_count(theta: np.ndarray) -> int:
@@ -136,25 +138,6 @@ def fit_damped(time: np.ndarray, voltage: np.ndarray, theta0: np.ndarray) -> Nls
     )
 
 
-def unit_covariance(jacobian: np.ndarray) -> np.ndarray:
-    """``(J^T J)^-1`` computed stably: SVD of the column-normalised Jacobian.
-
-    Singular directions (relative singular value below 1e-12) get an infinite variance
-    rather than a meaningless huge number.
-    """
-    norms = np.linalg.norm(jacobian, axis=0)
-    norms = np.where(norms > 0, norms, 1.0)
-    _, sing, vt = np.linalg.svd(jacobian / norms, full_matrices=False)
-    keep = sing > 1e-12 * sing[0]
-    inv = np.zeros_like(sing)
-    inv[keep] = 1.0 / sing[keep] ** 2
-    cov = (vt.T * inv) @ vt / np.outer(norms, norms)
-    if not keep.all():
-        undetermined = np.abs(vt[~keep]).max(axis=0) > 1e-3
-        cov[undetermined, undetermined] = np.inf
-    return cov
-
-
 def residual_correlation(residuals: np.ndarray) -> tuple[np.ndarray, float]:
     """Autocorrelation of residuals up to the lag where it has died out, and ``N_eff``.
 
@@ -193,11 +176,6 @@ def residual_correlation(residuals: np.ndarray) -> tuple[np.ndarray, float]:
     return rho[: lag + 1].copy(), float(min(max(n / tau, 1.0), n))
 
 
-def effective_sample_count(residuals: np.ndarray) -> float:
-    """``N_eff`` of :func:`residual_correlation`."""
-    return residual_correlation(residuals)[1]
-
-
 def sandwich_covariance(jacobian: np.ndarray, rho: np.ndarray, sigma: float) -> np.ndarray:
     """Parameter covariance of least squares under correlated noise.
 
@@ -209,7 +187,7 @@ def sandwich_covariance(jacobian: np.ndarray, rho: np.ndarray, sigma: float) -> 
     lies (near the ringing frequency for frequency and decay, near DC for the offset).
     """
     jac = np.asarray(jacobian, dtype=float)
-    bread = unit_covariance(jac)
+    bread = covariance_from_jacobian(jac)
     meat = jac.T @ jac
     lags = len(rho) - 1
     if lags <= 16:
@@ -276,8 +254,3 @@ def model_chunked(time: np.ndarray, theta: np.ndarray, chunk: int = 1_000_000) -
     for start in range(0, len(time), chunk):
         out[start : start + chunk] = damped_model(time[start : start + chunk], theta)
     return out
-
-
-def amplitude_phase(a: float, b: float) -> tuple[float, float]:
-    """``(A, phi)`` with ``a cos x + b sin x = A cos(x + phi)``."""
-    return math.hypot(a, b), math.atan2(-b, a)

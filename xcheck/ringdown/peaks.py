@@ -45,8 +45,8 @@ from scipy import stats
 from scipy.optimize import least_squares, linprog
 
 from xcheck.errors import TraceError
+from xcheck.fitting.stats import covariance_from_jacobian
 from xcheck.ringdown.envelope import diagnose_envelope
-from xcheck.ringdown.nls import unit_covariance
 from xcheck.ringdown.result import (
     EnvelopeDiagnostics,
     Estimate,
@@ -520,7 +520,7 @@ def _estimate(
             )
     jac = fit.jac.copy()
     jac[n:] /= factor_v
-    cov_free = unit_covariance(jac)
+    cov_free = covariance_from_jacobian(jac)
     k_t = float(stats.t.ppf(ONE_SIGMA, max(dof_t, 1)))
     k_v = float(stats.t.ppf(ONE_SIGMA, max(dof_v, 1))) if residual_based_v else 1.0
     coverage = np.array([k_t, k_t, k_v, k_v, k_v])[free]

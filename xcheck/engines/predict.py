@@ -1,0 +1,133 @@
+"""Predict a fixture's waveform with both engines: ngspice and the closed form.
+
+:func:`predict_fixture` builds the circuit from the values the fixture states (measured
+where given, else the label; parasitics written ``"?"`` are left out and listed), runs
+ngspice and, where it applies, the closed form on ngspice's own time points.
+:func:`write_csv` writes the result as ``time_s,ngspice_probe_V,theory_probe_V`` and,
+when the loop current is known, ``ngspice_current_A,theory_current_A``.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from xcheck.circuit.expand import build_circuit
+from xcheck.circuit.model import Circuit
+from xcheck.circuit.parameters import parameters_from_fixture
+from xcheck.engines.ngspice import simulate_ngspice
+from xcheck.engines.theory import SecondOrder, TheoryNotApplicable, characterise, simulate_theory
+from xcheck.engines.timing import reference_voltage
+from xcheck.engines.waveform import Waveform
+from xcheck.fixture.model import Fixture
+
+#: How every prediction CSV starts: an earlier one may be replaced, nothing else.
+CSV_HEADER_START = "time_s,ngspice_probe_V"
+
+
+@dataclass(frozen=True)
+class Prediction:
+    """Both engines' predictions for one circuit.
+
+    Attributes
+    ----------
+    ngspice
+        ngspice's waveform.
+    theory
+        The closed form on ngspice's time points, or None when it does not apply.
+    order
+        The reduced loop's characteristic numbers, or None.
+    why_no_theory
+        Why the closed form does not apply ("" when it does).
+    reference
+        The voltage differences are relative to (initial capacitor voltage or step), V.
+    left_out
+        ``"PART key"`` of every parasitic the fixture writes ``"?"``, left out of both.
+    title
+        The circuit's title.
+    """
+
+    ngspice: Waveform
+    theory: Waveform | None
+    order: SecondOrder | None
+    why_no_theory: str
+    reference: float
+    left_out: tuple[str, ...] = ()
+    title: str = ""
+
+    @property
+    def largest_difference(self) -> tuple[float, float] | None:
+        """(largest |ngspice - theory| in V, time at which it occurs in s), or None."""
+        if self.theory is None:
+            return None
+        gap = np.abs(self.ngspice.probe_voltage - self.theory.probe_voltage)
+        k = int(np.argmax(gap))
+        return float(gap[k]), float(self.ngspice.time[k])
+
+    def columns(self) -> dict[str, np.ndarray]:
+        """CSV columns (SI units in the names), in order."""
+        spice, theory = self.ngspice, self.theory
+        data = {"time_s": spice.time, "ngspice_probe_V": spice.probe_voltage}
+        if theory is not None:
+            data["theory_probe_V"] = theory.probe_voltage
+        if spice.loop_current is not None:
+            data["ngspice_current_A"] = spice.loop_current
+            if theory is not None and theory.loop_current is not None:
+                data["theory_current_A"] = theory.loop_current
+        return data
+
+
+def predict(circuit: Circuit, left_out: tuple[str, ...] = ()) -> Prediction:
+    """Run ngspice and, where it applies, the closed form on ngspice's time points.
+
+    Parameters
+    ----------
+    circuit
+        The circuit both engines simulate.
+    left_out
+        Parasitics left out of ``circuit``, carried into the result for the record.
+
+    Returns
+    -------
+    Prediction
+    """
+    spice = simulate_ngspice(circuit)
+    try:
+        order = characterise(circuit)
+        theory = simulate_theory(circuit, spice.time)
+        why = ""
+    except TheoryNotApplicable as exc:
+        order, theory, why = None, None, str(exc)
+    return Prediction(spice, theory, order, why, reference_voltage(circuit), left_out,
+                      circuit.title)
+
+
+def unknown_parasitics(fixture: Fixture) -> tuple[str, ...]:
+    """``"PART key"`` of every parasitic written ``"?"``, in loop order."""
+    return tuple(
+        f"{name} {key}"
+        for name in fixture.loop
+        for key in sorted(fixture.parts[name].unknown)
+        if key != "nominal"
+    )
+
+
+def predict_fixture(fixture: Fixture) -> Prediction:
+    """Both engines' predictions for the values ``fixture`` states."""
+    circuit = build_circuit(fixture, parameters_from_fixture(fixture))
+    return predict(circuit, unknown_parasitics(fixture))
+
+
+def write_csv(path: Path, prediction: Prediction) -> None:
+    """Write the prediction as CSV: a plain header line, then full-precision rows
+    (formatted by pyarrow, which writes the shortest text that reads back exactly)."""
+    import pyarrow as pa
+    import pyarrow.csv as pacsv
+
+    data = prediction.columns()
+    table = pa.table({name: pa.array(np.asarray(v, dtype=float)) for name, v in data.items()})
+    with open(path, "wb") as handle:
+        handle.write((",".join(data) + "\n").encode("ascii"))
+        pacsv.write_csv(table, handle, write_options=pacsv.WriteOptions(include_header=False))

@@ -1,0 +1,164 @@
+"""The ring-down of one file: read it, align it, estimate (``xcheck ringdown``'s work).
+
+A waveform file is read (:func:`xcheck.capture.scope_csv.read_trace`), the event found
+and the time axis moved to it (:func:`xcheck.capture.align.align_trace`), clipped samples
+left out, and the ring-down estimated (:func:`xcheck.ringdown.estimate_ringdown`) with
+the pre-event noise as the noise level. A table of extrema read off cursors is read with
+:func:`xcheck.capture.peak_table.read_peaks` and estimated with
+:func:`xcheck.ringdown.estimate_from_peaks`.
+
+The rest of this package works on arrays; this module is the one that reads files.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from xcheck.capture.align import Alignment, align_trace
+from xcheck.capture.peak_table import read_peaks
+from xcheck.capture.scope_csv import read_trace
+from xcheck.ringdown.derived import DerivedCircuit
+from xcheck.ringdown.estimator import estimate_ringdown
+from xcheck.ringdown.peaks import estimate_from_peaks
+from xcheck.ringdown.result import RingdownEstimate
+
+
+@dataclass(frozen=True)
+class FileRingdown:
+    """One file's ring-down estimate and what it was made from.
+
+    Attributes
+    ----------
+    source
+        The file as given.
+    estimate
+        The ring-down estimate.
+    time, voltage
+        Samples from the event (s, V), or a peak table's readings as written.
+    excluded
+        Samples left out of the fit (clipped), a boolean mask over ``time``; None for a
+        peak table.
+    alignment
+        Event time, baseline, noise, droop and inversion; None for a peak table.
+    source_name
+        The file's name as the reader reports it.
+    column
+        The channel used (traces), or None.
+    """
+
+    source: str
+    estimate: RingdownEstimate
+    time: np.ndarray
+    voltage: np.ndarray
+    excluded: np.ndarray | None
+    alignment: Alignment | None
+    source_name: str
+    column: str | None = None
+
+    @property
+    def is_peak_table(self) -> bool:
+        """True when the file was a table of extrema."""
+        return self.excluded is None
+
+    def to_json(self, derived: DerivedCircuit | None = None) -> dict[str, Any]:
+        """The estimate in SI units, JSON-safe (non-finite numbers become null).
+
+        Parameters
+        ----------
+        derived
+            Series-RLC values implied by the estimate, added as ``"derived"``.
+        """
+        data = self.estimate.to_json()
+        data["source"] = self.source
+        if self.alignment is not None:
+            a = self.alignment
+            data["alignment"] = {
+                "event_time_s": a.event_time,
+                "baseline_volts": a.baseline,
+                "noise_rms_volts": a.noise_rms,
+                "droop_volts_per_s": a.droop_per_s,
+                "inverted": bool(a.inverted),
+                "manual": bool(a.manual),
+                "pre_event_samples": int(a.pre_event_samples),
+                "notes": list(a.notes),
+            }
+        if derived is not None:
+            data["derived"] = derived.to_json()
+        return _plain(data)
+
+
+def _plain(data: Any) -> Any:
+    """JSON-safe copy: non-finite floats become null (JSON has no NaN or infinity)."""
+    if isinstance(data, dict):
+        return {k: _plain(v) for k, v in data.items()}
+    if isinstance(data, (list, tuple)):
+        return [_plain(v) for v in data]
+    if isinstance(data, float) and not math.isfinite(data):
+        return None
+    return data
+
+
+def ringdown_from_file(
+    path: str | Path,
+    *,
+    peaks: bool = False,
+    column: str | int | None = None,
+    time_column: str | int | None = None,
+    event_time: float | None = None,
+    expect: str = "natural",
+    modes: int = 1,
+) -> FileRingdown:
+    """Read ``path``, align it and estimate its ring-down.
+
+    Parameters
+    ----------
+    path
+        A waveform file (CSV, optionally gzip-compressed) or, with ``peaks``, a table of
+        extrema.
+    peaks
+        True when ``path`` is a peak table; the options below then do not apply.
+    column, time_column
+        Channel and time column (header name or 0-based index); None picks them.
+    event_time
+        Event time in the file's time base (s); None finds it from the trace.
+    expect
+        ``"natural"`` (a charged capacitor released) or ``"step"``.
+    modes
+        Damped sinusoids to fit.
+
+    Returns
+    -------
+    FileRingdown
+    """
+    if peaks:
+        table = read_peaks(path)
+        estimate = estimate_from_peaks(
+            table.time, table.voltage, table.uncertainty, source=table.source,
+            time_resolution=table.time_resolution, voltage_resolution=table.voltage_resolution,
+        )
+        return FileRingdown(str(path), estimate, np.asarray(table.time),
+                            np.asarray(table.voltage), None, None, table.source)
+    trace = read_trace(path, column=column, time_column=time_column)
+    aligned, alignment = align_trace(trace, event_time=event_time, expect=expect)
+    noise = (
+        alignment.noise_rms
+        if math.isfinite(alignment.noise_rms) and alignment.noise_rms > 0
+        else None
+    )
+    estimate = estimate_ringdown(
+        aligned.time,
+        aligned.voltage,
+        noise_sigma=noise,
+        exclude=aligned.clipped,
+        modes=modes,
+        resolution=trace.resolution,
+        source=trace.source,
+    )
+    return FileRingdown(str(path), estimate, np.asarray(aligned.time),
+                        np.asarray(aligned.voltage), np.asarray(aligned.clipped), alignment,
+                        trace.source, trace.column)
