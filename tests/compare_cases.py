@@ -1,7 +1,8 @@
 """Seeded synthetic events for the comparison tests (invented scenarios).
 
 The captures are integrated by scipy.signal.lsim (xcheck.demo.synth), independently of the
-closed-form engine the fit uses.
+closed-form engine the fit uses. The committed fixture descriptions live in tests/data/,
+one copy each; :func:`data_text` reads one and :func:`variant` derives a variant of it.
 """
 
 from __future__ import annotations
@@ -15,42 +16,34 @@ from xcheck.demo.synth import ScopeCapture, capture_trace, peak_table, write_cap
 #: Hidden extra series loss in the "lossy jig" case (ohms).
 HIDDEN_EXTRA = 0.35
 
-LOSSY_JIG_TOML = '''\
-title = "Lossy jig ring-down (invented example)"
-response = "natural"
-loop = ["SW1", "C1", "R1", "L1"]
-probe = "C1"
+#: Folder of the committed test data (invented fixture descriptions).
+DATA = Path(__file__).parent / "data"
 
-[parts.SW1]
-kind = "switch"
-resistance = "5m"
 
-[parts.C1]
-kind = "capacitor"
-nominal = "10u"
-measured = "10.2u"
-esr = "20m"
-initial = "12"
+def data_text(name: str) -> str:
+    """Text of ``tests/data/<name>``, one of the committed invented fixtures."""
+    return (DATA / name).read_text(encoding="utf-8")
 
-[parts.R1]
-kind = "resistor"
-nominal = "1"
-measured = { reading = "1.06", leads = "0.06" }
 
-[parts.L1]
-kind = "inductor"
-nominal = "220u"
-measured = "215u"
+def variant(text: str, *edits: tuple[str, str]) -> str:
+    """``text`` with each ``(old, new)`` replacement made; each ``old`` must occur once,
+    so that a variant cannot silently equal its base."""
+    for old, new in edits:
+        if text.count(old) != 1:
+            raise ValueError(f"{old!r} occurs {text.count(old)} times in the base text, not once")
+        text = text.replace(old, new)
+    return text
 
-[loop_reading]
-reading = "1.065"
-leads = "0.06"
-'''
+
+LOSSY_JIG_TOML = data_text("lossy_jig.toml")
 
 #: The same jig with two loss sources nobody measured, written "?".
-UNSEPARABLE_TOML = LOSSY_JIG_TOML.replace('esr = "20m"', 'esr = "?"').replace(
-    'measured = "215u"', 'measured = "215u"\ndcr = "?"').replace(
-    '[loop_reading]\nreading = "1.065"\nleads = "0.06"\n', '')
+UNSEPARABLE_TOML = variant(
+    LOSSY_JIG_TOML,
+    ('esr = "20m"', 'esr = "?"'),
+    ('measured = "215u"', 'measured = "215u"\ndcr = "?"'),
+    ('[loop_reading]\nreading = "1.065"\nleads = "0.06"\n', ""),
+)
 
 
 def lossy_capture(seed: int, noise: float = 0.01) -> ScopeCapture:

@@ -9,44 +9,11 @@ from pathlib import Path
 
 import pytest
 
-#: The format's documented example fixture (natural response, invented scenario),
-#: without its [step] table, which a natural response does not take.
-EXAMPLE_FIXTURE_TOML = '''\
-title = "Film capacitor ring-down, jig B (invented example)"
-response = "natural"
-loop = ["SW1", "C1", "R1", "L1"]
-probe = "C1"
+from compare_cases import data_text
 
-[parts.C1]
-kind = "capacitor"
-nominal = "47u"
-measured = "49.1u"
-tolerance = "20%"
-esr = "40m"
-initial = "12"
-
-[parts.R1]
-kind = "resistor"
-nominal = "0.22"
-measured = { reading = "0.291", leads = "0.058" }
-
-[parts.L1]
-kind = "inductor"
-nominal = "470u"
-dcr = "?"
-
-[parts.SW1]
-kind = "switch"
-resistance = "5m"
-
-[loop_reading]
-reading = "0.512"
-leads = "0.058"
-
-[probe_loading]
-resistance = "10meg"
-capacitance = "11p"
-'''
+#: The format's documented example fixture (README.md; natural response, invented
+#: scenario), without its [step] table, which a natural response does not take.
+EXAMPLE_FIXTURE_TOML = data_text("film_jig.toml")
 
 
 @pytest.fixture

@@ -23,7 +23,8 @@ from compare_cases import (
 )
 from xcheck.compare import run_comparison
 from xcheck.fixture.reader import load_fixture
-from xcheck.report.markdown import summary, write_report
+from xcheck.report.markdown import write_report
+from xcheck.report.summary import summary
 
 
 @pytest.fixture
@@ -214,3 +215,30 @@ def test_step_response_hidden_loss_from_trace_and_from_peaks(tmp_path):
     extra = {v.label: v for v in from_peaks.outcome("extra-loss").fit.fitted}["loop.extra_resistance"]
     assert abs(extra.value - 0.08) < 3 * extra.stderr
     assert from_peaks.outcome("as-measured").ranked.delta_bic > 10
+
+
+@pytest.mark.ngspice
+def test_ngspice_turning_points_of_a_step_peak_table_agree_with_theory(tmp_path):
+    # A step response rings about the settled level, so a trough is still well above
+    # 0 V: the engine's turning point must be the sample farthest from that level, not
+    # the largest voltage in the search window (which is the window's edge). Reference:
+    # the closed form of the same circuit; ngspice agrees with it to ~1e-4 of the step on
+    # the automatic time step (tests/engines/test_engine_agreement.py), so 1e-3, the
+    # comparison's own disagreement limit, separates right from wrong (wrong was ~24 %).
+    from pathlib import Path
+
+    from xcheck.demo.synth import peak_table
+
+    fixture = load_fixture(Path(__file__).parent.parent / "examples" / "lc_filter_step.toml")
+    table = peak_table(_step_capture(5), count=9, cursor_volts=0.02, cursor_seconds=5e-8)[1:]
+    lines = ["time [us],value [V],uncertainty [V]"]
+    lines += [f"{t * 1e6:.4f},{v:.3f},0.02" for t, v in table]
+    peaks = tmp_path / "step_peaks.csv"
+    peaks.write_text("\n".join(lines) + "\n", encoding="ascii")
+    result = run_comparison(fixture, peaks=peaks, use_ngspice=True)
+    for outcome in result.outcomes:
+        if outcome.failed:
+            continue
+        assert outcome.ngspice is not None, outcome.engine_notes
+        assert outcome.engine_disagreement < 1e-3, (outcome.name, outcome.engine_disagreement)
+    assert "differ by" not in result.verdict

@@ -13,7 +13,7 @@ import math
 from abc import ABC, abstractmethod
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, ClassVar
+from typing import ClassVar
 
 import numpy as np
 
@@ -128,35 +128,6 @@ class Measured(ABC):
                         list(est.flagged_extrema), est.neper_frequency.value,
                         float(est.envelope_at(np.array([0.0]))[0]))
 
-    def to_json(self) -> dict[str, Any]:
-        """The ``measured`` object of summary.json."""
-        est = self.estimate
-        data: dict[str, Any] = {
-            "kind": self.kind,
-            "source": display_path(self.source),
-            "damped_frequency_hz": _pair(est.damped_frequency),
-            "neper_frequency_per_s": _pair(est.neper_frequency),
-            "initial_volts": _pair(est.initial_volts),
-            "envelope_exponential": bool(est.envelope_exponential),
-            "flagged_extrema": [int(i) for i in est.flagged_extrema],
-            "noise_sigma_volts": _finite(est.noise_sigma),
-            "effective_samples": _finite(est.effective_samples),
-            "samples_excluded": int(self.excluded.sum()),
-            "findings": list(self.findings),
-            "notes": list(self.notes),
-        }
-        if self.alignment is not None:
-            a = self.alignment
-            data["alignment"] = {
-                "event_time_s": _finite(a.event_time),
-                "baseline_volts": _finite(a.baseline),
-                "noise_rms_volts": _finite(a.noise_rms),
-                "droop_volts_per_s": _finite(a.droop_per_s),
-                "inverted": bool(a.inverted),
-                "manual": bool(a.manual),
-            }
-        return data
-
 
 @dataclass(frozen=True)
 class MeasuredTrace(Measured):
@@ -198,16 +169,6 @@ class MeasuredPeaks(Measured):
                  else np.full(self.voltage.shape, self.estimate.noise_sigma))
         return PeakObservation(self.time, self.voltage, sigma, period,
                                time_sigma=_time_scatter(self.time, period, self.time_resolution))
-
-
-def _finite(value: float) -> float | None:
-    return float(value) if value is not None and math.isfinite(value) else None
-
-
-def _pair(estimate) -> dict[str, float | None]:
-    crb = getattr(estimate, "crb", None)
-    return {"value": _finite(estimate.value), "stderr": _finite(estimate.stderr),
-            "crb": _finite(crb) if crb is not None else None}
 
 
 def _time_scatter(time: np.ndarray, period: float, resolution: float | None = None) -> float:

@@ -13,36 +13,13 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+from compare_cases import data_text
 from xcheck.cli import main
 from xcheck.values import format_eng
 
 pytestmark = pytest.mark.ngspice  # skipped, with the install hint, without libngspice
 
-RING_DOWN = '''\
-title = "Bench ring-down for the simulate test (invented example)"
-response = "natural"
-loop = ["SW1", "C1", "R1", "L1"]
-probe = "C1"
-
-[parts.SW1]
-kind = "switch"
-resistance = "10m"
-
-[parts.C1]
-kind = "capacitor"
-nominal = "1u"
-esr = "40m"
-initial = "10"
-
-[parts.R1]
-kind = "resistor"
-nominal = "2.2"
-
-[parts.L1]
-kind = "inductor"
-nominal = "1m"
-dcr = "?"
-'''
+RING_DOWN = data_text("bench_ringdown.toml")
 
 # A winding capacitance of half the main capacitance: a real third and fourth mode.
 NOT_REDUCIBLE = RING_DOWN.replace('dcr = "?"', 'dcr = "0.1"\nparallel_capacitance = "0.5u"')

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import pytest
 
+from compare_cases import data_text, variant
 from xcheck.fitting.candidates import (
     EXTRA_RESISTANCE,
     RingHint,
@@ -17,32 +18,14 @@ from xcheck.fitting.candidates import (
 from xcheck.errors import FixtureError
 from xcheck.fixture.reader import parse_fixture_text
 
-BASE = '''\
-title = "ladder check (invented example)"
-response = "natural"
-loop = ["SW1", "C1", "R1", "L1"]
-probe = "C1"
-[parts.SW1]
-kind = "switch"
-resistance = "5m"
-[parts.C1]
-kind = "capacitor"
-nominal = "47u"
-measured = "49.1u"
-esr = "40m"
-initial = "12"
-[parts.R1]
-kind = "resistor"
-nominal = "0.22"
-measured = { reading = "0.291", leads = "0.058" }
-[parts.L1]
-kind = "inductor"
-nominal = "470u"
-dcr = "?"
-[loop_reading]
-reading = "0.506"
-leads = "0.058"
-'''
+#: The film jig (tests/data/film_jig.toml) with a loop reading of 0.506 ohm, without the
+#: tolerance and probe loading, which the ladder arithmetic below does not use.
+BASE = variant(
+    data_text("film_jig.toml"),
+    ('tolerance = "20%"\n', ""),
+    ('reading = "0.512"', 'reading = "0.506"'),
+    ('\n[probe_loading]\nresistance = "10meg"\ncapacitance = "11p"\n', ""),
+)
 
 
 def _ladder(text: str = BASE, hint: RingHint | None = None):
@@ -150,3 +133,12 @@ release = ["R1.value"]
     assert held.upper == pytest.approx(0.233 + 3 * 0.01291, abs=1e-9)
     released = ladder["r-released"].free[0]
     assert released.upper > 1.0 and released.lower < 0.01
+
+
+def test_a_rung_the_ladder_leaves_out_fails_when_the_ladder_is_built():
+    # Read time checks names against the four defaults; only the ladder knows that it
+    # stops at extra-loss when nothing is unknown (see test_ladder_stops_when_nothing_is_unknown).
+    text = BASE.replace('dcr = "?"', 'dcr = "0.2"\nmeasured = "455u"')
+    fixture = parse_fixture_text(text + '\n[candidates.x]\nbase = "all-unknowns"\n', "l.toml")
+    with pytest.raises(FixtureError, match=r"candidates\.x\.base is 'all-unknowns'"):
+        build_candidates(fixture)

@@ -1,11 +1,16 @@
 """Fixture to circuit: expanding a fixture and one parameter set into primitive elements.
 
-This module owns :func:`build_circuit` and :func:`parameter_problems`, the series
-layout of each part kind and the elements inserted where the loop closes. The data
-types, naming helpers and topology checks it uses live in :mod:`xcheck.circuit.model`.
+This module owns :func:`build_circuit` and :func:`parameter_problems` and the elements
+inserted where the loop closes. How each part kind is laid out (its series elements,
+the elements across it, what it becomes when none is left) and how each value is
+bounded are read from the kind's row in :mod:`xcheck.fixture.schema`; this module
+keeps no per-kind table. The data types, naming helpers and topology checks it uses
+live in :mod:`xcheck.circuit.model`.
 
 :func:`build_circuit` expands each part of a fixture into primitive elements in series
-between the part's two nodes (internal nodes are named from the part, ``C1_a``):
+between the part's two nodes (internal nodes are named from the part, ``C1_a``). The
+rows of :data:`~xcheck.fixture.schema.PART_KINDS` are the authority; as written today
+they give:
 
 ============  ======================================================================
 part          elements, first terminal to second
@@ -62,37 +67,19 @@ from xcheck.circuit.parameters import (
     PROBE_RESISTANCE,
     STEP_SOURCE_RESISTANCE,
     STEP_VOLTS,
-    ParameterKey,
     ParameterSet,
     missing_values,
 )
-from xcheck.fixture.schema import PART_KINDS
+from xcheck.fixture.schema import (
+    PART_KINDS,
+    PSEUDO_PARTS,
+    UNIT_LETTER,
+    ParameterKey,
+    key_label,
+)
 
 if TYPE_CHECKING:  # pragma: no cover - import for type hints only
     from xcheck.fixture.model import Fixture, Part
-
-
-#: Pseudo-parts of a parameter set and the fields each may carry.
-PSEUDO_FIELDS: dict[str, tuple[str, ...]] = {
-    "probe": ("resistance", "capacitance"),
-    "step": ("volts", "source_resistance"),
-    "loop": ("extra_resistance", "extra_inductance"),
-}
-
-#: Series order of each kind's elements, first terminal to second (role names), and
-#: the SPICE letter of each role. ``"value"`` is the part's own R, L or C.
-SERIES_LAYOUT: dict[str, tuple[tuple[str, str], ...]] = {
-    "capacitor": (("esl", "L"), ("esr", "R"), ("value", "C")),
-    "inductor": (("value", "L"), ("dcr", "R")),
-    "resistor": (("value", "R"), ("inductance", "L")),
-    "switch": (("resistance", "R"),),
-    "wire": (("resistance", "R"), ("inductance", "L")),
-}
-
-#: Roles placed across something rather than in series: role -> what it is across.
-PARALLEL_ROLES: dict[str, str] = {"leakage": "ideal capacitance", "parallel_capacitance": "part"}
-
-_UNIT_WORD = {"F": "capacitance", "H": "inductance", "ohm": "resistance"}
 
 
 # --------------------------------------------------------------------------------------
@@ -100,49 +87,33 @@ _UNIT_WORD = {"F": "capacitance", "H": "inductance", "ohm": "resistance"}
 # --------------------------------------------------------------------------------------
 
 
-def _label(key: ParameterKey) -> str:
-    return f"{key[0]}.{key[1]}"
-
-
 def _value_problem(key: ParameterKey, value: float, lower: str) -> str | None:
     """A problem text when ``value`` breaks the bound ``lower`` ("positive", ...)."""
     if not math.isfinite(value):
-        return f"{_label(key)} is {value!r}; expected a finite number"
+        return f"{key_label(key)} is {value!r}; expected a finite number"
     if lower == "positive" and value <= 0:
-        return f"{_label(key)} is {value!r}; expected a value above zero"
+        return f"{key_label(key)} is {value!r}; expected a value above zero"
     if lower == "non-negative" and value < 0:
-        return f"{_label(key)} is {value!r}; expected zero or more (zero leaves it out)"
+        return f"{key_label(key)} is {value!r}; expected zero or more (zero leaves it out)"
     if lower == "non-zero" and value == 0:
-        return f"{_label(key)} is zero; expected a non-zero value"
+        return f"{key_label(key)} is zero; expected a non-zero value"
     return None
 
 
 def _bound_of(fixture: Fixture, key: ParameterKey) -> str | None:
-    """How a key's value is bounded, or None when the key belongs to nothing."""
-    part, name = key
-    if part in fixture.parts and part in fixture.loop:
-        row = PART_KINDS[fixture.parts[part].kind]
-        if name == "value" and row.unit is not None:
-            return "positive"
-        if name in row.parasitics:
-            return "positive" if name == "leakage" else "non-negative"
+    """How a key's value is bounded (its schema field's bound), or None when the key
+    belongs to nothing."""
+    if key[0] in fixture.parts and key[0] not in fixture.loop:
         return None
-    bounds = {
-        PROBE_RESISTANCE: "positive",
-        PROBE_CAPACITANCE: "non-negative",
-        STEP_VOLTS: "non-zero",
-        STEP_SOURCE_RESISTANCE: "non-negative",
-        LOOP_EXTRA_RESISTANCE: "finite",  # a fitted correction may be negative
-        LOOP_EXTRA_INDUCTANCE: "non-negative",
-    }
-    return bounds.get(key)
+    spec = fixture.field_spec(key)
+    return None if spec is None else spec.bound
 
 
 def _fields_of(fixture: Fixture, part: str) -> list[str]:
     if part in fixture.parts:
-        row = PART_KINDS[fixture.parts[part].kind]
-        return (["value"] if row.unit else []) + list(row.parasitics)
-    return list(PSEUDO_FIELDS.get(part, ()))
+        return list(PART_KINDS[fixture.parts[part].kind].fields)
+    pseudo = PSEUDO_PARTS.get(part)
+    return [] if pseudo is None else list(pseudo.fields)
 
 
 def parameter_problems(fixture: Fixture, parameters: ParameterSet) -> list[str]:
@@ -162,7 +133,7 @@ def parameter_problems(fixture: Fixture, parameters: ParameterSet) -> list[str]:
         that belongs to no part; empty when the circuit can be built.
     """
     problems: list[str] = []
-    for part in PSEUDO_FIELDS:
+    for part in PSEUDO_PARTS:
         if part in fixture.parts:
             problems.append(
                 f"a part is called {part!r}, a name reserved for the {part} settings; "
@@ -178,7 +149,7 @@ def parameter_problems(fixture: Fixture, parameters: ParameterSet) -> list[str]:
                 hint = f"{key[0]} takes {', '.join(known)}"
             else:
                 hint = "parts in the loop: " + ", ".join(fixture.loop)
-            problems.append(f"the value {_label(key)} belongs to nothing in this fixture ({hint})")
+            problems.append(f"the value {key_label(key)} belongs to nothing in this fixture ({hint})")
             continue
         problem = _value_problem(key, value, bound)
         if problem:
@@ -191,8 +162,8 @@ def _missing_text(fixture: Fixture, key: ParameterKey) -> str:
     if key == STEP_VOLTS:
         return "the step source has no voltage: give [step] volts = \"12\" (for example)"
     part = fixture.parts[name]
-    row = PART_KINDS[part.kind]
-    quantity = _UNIT_WORD.get(row.unit or "", "value")
+    own = PART_KINDS[part.kind].fields.get("value")
+    quantity = "value" if own is None else own.word
     why = "is written '?'" if "nominal" in part.unknown else "has no value here"
     return (
         f"part {name!r} ({part.kind}): its {quantity} {why} and no measured value is "
@@ -205,7 +176,8 @@ def _loop_initial_current(fixture: Fixture) -> tuple[float, list[str]]:
     stated = [
         (name, fixture.parts[name].initial)
         for name in fixture.loop
-        if fixture.parts[name].kind == "inductor" and fixture.parts[name].initial is not None
+        if PART_KINDS[fixture.parts[name].kind].initial_unit == "A"
+        and fixture.parts[name].initial is not None
     ]
     values = {float(v) for _, v in stated}
     if len(values) > 1:
@@ -245,23 +217,47 @@ class _Work:
         return element
 
 
-def _series_specs(
-    part: Part, parameters: ParameterSet, current: float
-) -> list[tuple[str, str, float, str, float | None]]:
-    """(role, SPICE letter, value, origin, initial) of a part's series elements."""
+@dataclass(frozen=True)
+class _Spec:
+    """One series element of a part: its layout slot, value, origin and initial state."""
+
+    role: str
+    letter: str
+    tagged: bool
+    value: float
+    origin: str
+    initial: float | None
+
+
+def _series_specs(part: Part, parameters: ParameterSet, current: float) -> list[_Spec]:
+    """The series elements of a part (its row's layout), those with a value only."""
     specs = []
-    for role, letter in SERIES_LAYOUT[part.kind]:
-        key = (part.name, role)
+    for slot in PART_KINDS[part.kind].series:
+        key = (part.name, slot.role)
         value = parameters.get(key)
         if value is None or value == 0:
             continue
         initial: float | None = None
-        if letter == "C":
+        if slot.letter == "C":
             initial = float(part.initial or 0.0)
-        elif letter == "L":
+        elif slot.letter == "L":
             initial = current
-        specs.append((role, letter, value, parameters.origins.get(key, ""), initial))
+        specs.append(
+            _Spec(slot.role, slot.letter, slot.tagged, value,
+                  parameters.origins.get(key, ""), initial)
+        )
     return specs
+
+
+def _voltage_at_zero(specs: list[_Spec], current: float) -> float:
+    """Voltage across a run of series elements at t = 0: the loop current through its
+    resistances plus its capacitors' initial voltages (inductances taken as 0 V, so that
+    a capacitance across them starts without a jump)."""
+    voltage = current * sum(s.value for s in specs if s.letter == "R")
+    for spec in specs:
+        if spec.letter == "C":
+            voltage += spec.initial or 0.0
+    return voltage
 
 
 def build_circuit(fixture: Fixture, parameters: ParameterSet) -> Circuit:
@@ -310,49 +306,49 @@ def build_circuit(fixture: Fixture, parameters: ParameterSet) -> Circuit:
                 node_map[node] = work.node(spice_identifier(node, "n"))
 
     has_ideal_switch = any(
-        fixture.parts[name].kind == "switch"
+        PART_KINDS[fixture.parts[name].kind].ideal is not None
         and not _series_specs(fixture.parts[name], parameters, current)
         for name in fixture.loop
     )
     chain_end = _closing_chain(fixture, parameters, work, current, not has_ideal_switch)
     sense = work.sense
     spans: dict[str, tuple[str, str]] = {}
-    series_r: dict[str, float] = {}
+    at_zero: dict[str, float] = {}
     closed = False
     for name, first, second in connections:
         part = fixture.parts[name]
+        row = PART_KINDS[part.kind]
         a, b = node_map[first], node_map[second]
         if not closed and first == GROUND:
             a, closed = chain_end, True
         spans[name] = (a, b)
         ident = spice_identifier(name, "p")
         specs = _series_specs(part, parameters, current)
-        series_r[name] = sum(s[2] for s in specs if s[1] == "R")
-        if part.kind == "switch" and not specs:
+        at_zero[name] = _voltage_at_zero(specs, current)
+        if not specs and row.ideal is not None:  # e.g. a switch without resistance
             element = work.add(
-                "V", f"V_{ident}", a, b, 0.0, part=name, role="ideal",
-                origin="no closed resistance given",
+                "V", f"V_{ident}", a, b, 0.0, part=name, role=row.ideal.role,
+                origin=row.ideal.origin,
             )
             sense = sense or element.name
             continue
-        if not specs:  # a wire with neither resistance nor inductance
+        if not specs:  # e.g. a wire with neither resistance nor inductance
             work.merges.union(a, b)
             continue
         inner = [work.node(f"{ident}_{chr(ord('a') + k)}") for k in range(len(specs) - 1)]
         ends = [a, *inner, b]
-        for k, (role, letter, value, origin, initial) in enumerate(specs):
-            base = f"{letter}_{ident}" if role in ("value", "resistance") or (
-                part.kind == "wire"
-            ) else f"{letter}_{ident}_{role}"
+        own: tuple[Element, _Spec] | None = None
+        for k, spec in enumerate(specs):
+            base = f"{spec.letter}_{ident}_{spec.role}" if spec.tagged else f"{spec.letter}_{ident}"
             element = work.add(
-                letter, base, ends[k], ends[k + 1], value,
-                initial=initial, part=name, role=role, origin=origin,
+                spec.letter, base, ends[k], ends[k + 1], spec.value,
+                initial=spec.initial, part=name, role=spec.role, origin=spec.origin,
             )
-            if part.kind == "capacitor" and role == "value":
-                _leakage(part, parameters, work, element)
-        _self_capacitance(part, parameters, work, (a, b), current * series_r[name])
+            if spec.role == "value":
+                own = (element, spec)
+        _across(part, parameters, work, (a, b), at_zero[name], own, current)
 
-    _probe_loading(fixture, parameters, work, spans, current, series_r)
+    _probe_loading(fixture, parameters, work, spans, at_zero)
     rep = _representatives(work)
     probe = tuple(rep(n) for n in spans[fixture.probe])
     if probe[0] == probe[1]:
@@ -421,28 +417,35 @@ def _closing_chain(
     return node
 
 
-def _leakage(part: Part, parameters: ParameterSet, work: _Work, capacitor: Element) -> None:
-    """Leakage resistance across the ideal capacitance only."""
-    key = (part.name, "leakage")
-    value = parameters.get(key)
-    if value:
-        work.add(
-            "R", f"R_{spice_identifier(part.name, 'p')}_leakage", *capacitor.nodes, value,
-            part=part.name, role="leakage", origin=parameters.origins.get(key, ""),
-            in_loop=False,
-        )
-
-
-def _self_capacitance(
-    part: Part, parameters: ParameterSet, work: _Work, span: tuple[str, str], v0: float
+def _across(
+    part: Part,
+    parameters: ParameterSet,
+    work: _Work,
+    span: tuple[str, str],
+    span_v0: float,
+    own: tuple[Element, _Spec] | None,
+    current: float,
 ) -> None:
-    """An inductor's parallel capacitance across the whole part."""
-    key = (part.name, "parallel_capacitance")
-    value = parameters.get(key) if part.kind == "inductor" else None
-    if value:
+    """The part's parallel elements (its row's ``parallel``), in row order: each across
+    the part's own element (a capacitor's leakage across the ideal capacitance) or the
+    whole part (an inductor's self-capacitance). A capacitance starts at the voltage
+    across what it bridges, so that nothing jumps at t = 0."""
+    row = PART_KINDS[part.kind]
+    for role, across in row.parallel.items():
+        key = (part.name, role)
+        value = parameters.get(key)
+        if not value:
+            continue
+        if across == "value":
+            if own is None:
+                continue
+            nodes, v0 = own[0].nodes, _voltage_at_zero([own[1]], current)
+        else:
+            nodes, v0 = span, span_v0
+        letter = UNIT_LETTER[row.fields[role].unit]
         work.add(
-            "C", f"C_{spice_identifier(part.name, 'p')}_parallel_capacitance", *span, value,
-            initial=v0, part=part.name, role="parallel_capacitance",
+            letter, f"{letter}_{spice_identifier(part.name, 'p')}_{role}", *nodes, value,
+            initial=v0 if letter == "C" else None, part=part.name, role=role,
             origin=parameters.origins.get(key, ""), in_loop=False,
         )
 
@@ -452,15 +455,11 @@ def _probe_loading(
     parameters: ParameterSet,
     work: _Work,
     spans: dict[str, tuple[str, str]],
-    current: float,
-    series_r: dict[str, float],
+    at_zero: dict[str, float],
 ) -> None:
     """Probe resistance and capacitance across the probed part's two nodes."""
     span = spans[fixture.probe]
-    part = fixture.parts[fixture.probe]
-    v0 = current * series_r[fixture.probe]
-    if part.kind == "capacitor":
-        v0 += float(part.initial or 0.0)
+    v0 = at_zero[fixture.probe]
     for key, letter in ((PROBE_RESISTANCE, "R"), (PROBE_CAPACITANCE, "C")):
         value = parameters.get(key)
         if value:

@@ -1,7 +1,9 @@
 """Which value each circuit element takes: the parameter set of one candidate model.
 
-A :class:`ParameterSet` maps a key ``(part, field)`` to an SI value and records where
-the value came from. Fields are ``"value"`` (the part's own R, L or C), a parasitic key
+A :class:`ParameterSet` maps a key ``(part, field)``
+(:data:`xcheck.fixture.schema.ParameterKey`, written ``"C1.esr"`` by
+:func:`xcheck.fixture.schema.key_label`) to an SI value and records where the value
+came from. Fields are ``"value"`` (the part's own R, L or C), a parasitic key
 of the part's kind (``"esr"``, ``"dcr"``, ...), or, for the pseudo-parts below:
 
 - ``("probe", "resistance")`` and ``("probe", "capacitance")``: probe loading;
@@ -18,12 +20,10 @@ from dataclasses import dataclass, field
 from types import MappingProxyType
 from typing import TYPE_CHECKING, Mapping
 
-from xcheck.fixture.schema import PART_KINDS
+from xcheck.fixture.schema import PART_KINDS, ParameterKey
 
 if TYPE_CHECKING:  # pragma: no cover - import for type hints only
     from xcheck.fixture.model import Fixture
-
-ParameterKey = tuple[str, str]
 
 #: Origins recorded beside each value (shown in decks and reports).
 ORIGIN_LABEL = "label value"
@@ -80,13 +80,6 @@ STEP_VOLTS: ParameterKey = ("step", "volts")
 STEP_SOURCE_RESISTANCE: ParameterKey = ("step", "source_resistance")
 LOOP_EXTRA_RESISTANCE: ParameterKey = ("loop", "extra_resistance")
 LOOP_EXTRA_INDUCTANCE: ParameterKey = ("loop", "extra_inductance")
-
-
-def label_key(label: str) -> ParameterKey:
-    """The key of a ``"PART.FIELD"`` label as reports and fits print it:
-    ``"L1.dcr"`` -> ``("L1", "dcr")``."""
-    part, _, name = label.partition(".")
-    return (part, name)
 
 
 def parameters_from_fixture(

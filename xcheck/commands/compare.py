@@ -7,9 +7,10 @@ import sys
 import time
 from pathlib import Path
 
-from xcheck.compare import Comparison, run_comparison
+from xcheck.compare import run_comparison
 from xcheck.errors import XcheckError
 from xcheck.fixture.reader import load_fixture
+from xcheck.outcome import Comparison
 from xcheck.report.markdown import write_report
 from xcheck.values import parse_value
 

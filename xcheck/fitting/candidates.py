@@ -13,7 +13,9 @@ default ladder climbs from what is printed on the parts to what the measurement 
 4. ``all-unknowns``: ``extra-loss`` plus every value written ``"?"`` and the reactive
    value without a measurement (L or C) fitted.
 
-A fixture may add candidates of its own and drop defaults in a ``[candidates]`` table::
+A fixture may add candidates of its own and drop defaults in a ``[candidates]`` table
+(read and checked with the rest of the fixture by
+:mod:`xcheck.fixture.candidates_table`; here its records become candidates)::
 
     [candidates]
     drop = ["label"]
@@ -31,19 +33,17 @@ reading unless the candidate also lists it in ``release``.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Mapping
 
-from xcheck.errors import FixtureError, ValueParseError
+from xcheck.errors import FixtureError
+from xcheck.fixture.candidates_table import DEFAULT_NAMES, CandidateSpec
 from xcheck.fixture.model import Fixture
 from xcheck.circuit.parameters import (
     LOOP_EXTRA_RESISTANCE,
     ORIGIN_MEASURED,
-    ParameterKey,
     ParameterSet,
     parameters_from_fixture,
 )
-from xcheck.fixture.schema import PART_KINDS
-from xcheck.values import parse_value
+from xcheck.fixture.schema import PART_KINDS, ParameterKey, key_label
 
 EXTRA_RESISTANCE: ParameterKey = LOOP_EXTRA_RESISTANCE
 
@@ -51,8 +51,6 @@ EXTRA_RESISTANCE: ParameterKey = LOOP_EXTRA_RESISTANCE
 #: 1 % of the reading plus 10 mOhm (contact repeatability). Common practice, no source.
 METER_RELATIVE_UNCERTAINTY = 0.01
 METER_ABSOLUTE_UNCERTAINTY_OHM = 0.010
-
-DEFAULT_NAMES = ("label", "as-measured", "extra-loss", "all-unknowns")
 
 
 @dataclass(frozen=True)
@@ -69,7 +67,7 @@ class FreeParameter:
     @property
     def label(self) -> str:
         """``"C1.esr"``-style name used in reports."""
-        return f"{self.key[0]}.{self.key[1]}"
+        return key_label(self.key)
 
 
 @dataclass(frozen=True)
@@ -89,66 +87,59 @@ class Candidate:
 
 
 def unit_of(fixture: Fixture, key: ParameterKey) -> str:
-    """Canonical unit of a parameter key (``"ohm"``, ``"H"``, ``"F"``, ``"V"``)."""
-    part, name = key
-    if part == "loop":
-        return "H" if name.endswith("inductance") else "ohm"
-    if part == "probe":
-        return "F" if name == "capacitance" else "ohm"
-    if part == "step":
-        return "V" if name == "volts" else "ohm"
-    row = PART_KINDS[fixture.parts[part].kind]
-    if name == "value":
-        return row.unit or "ohm"
-    return row.parasitics[name]
+    """Canonical unit of a parameter key (``"ohm"``, ``"H"``, ``"F"``, ``"V"``), from its
+    schema field.
 
-
-_FIELD_WORDS = {
-    "esr": "ESR",
-    "esl": "ESL",
-    "leakage": "leakage resistance",
-    "dcr": "winding resistance (DCR)",
-    "parallel_capacitance": "winding capacitance",
-    "inductance": "series inductance",
-    "resistance": "resistance",
-}
-_VALUE_WORDS = {"capacitor": "capacitance", "inductor": "inductance", "resistor": "resistance"}
+    Raises
+    ------
+    KeyError
+        When the key names no field of the fixture's parts or of a pseudo-part.
+    """
+    spec = fixture.field_spec(key)
+    if spec is None:
+        raise KeyError(f"{key_label(key)} names no value of this fixture")
+    return spec.unit
 
 
 def describe_key(fixture: Fixture, key: ParameterKey) -> str:
-    """Plain words for a parameter key: ``("L1", "value")`` -> ``"L1 inductance"``."""
+    """Plain words for a parameter key: ``("L1", "value")`` -> ``"L1 inductance"``.
+
+    A part's key reads as its name and its field's words; a pseudo-part's as its
+    field's words alone (``"extra series loss"``).
+    """
     part, name = key
-    if part == "loop":
-        return "extra series loss" if name == "extra_resistance" else "extra series inductance"
-    if part in ("probe", "step"):
+    spec = fixture.field_spec(key)
+    if spec is None:
         return f"{part} {name.replace('_', ' ')}"
-    kind = fixture.parts[part].kind if part in fixture.parts else ""
-    if name == "value":
-        return f"{part} {_VALUE_WORDS.get(kind, 'value')}"
-    return f"{part} {_FIELD_WORDS.get(name, name.replace('_', ' '))}"
+    return spec.word if part not in fixture.parts else f"{part} {spec.word}"
 
 
 def dc_series_keys(fixture: Fixture) -> tuple[ParameterKey, ...]:
     """Keys of every series resistance a DC ohmmeter sees round the loop without the
-    capacitor: resistor values, winding, switch and wire resistances."""
-    keys: list[ParameterKey] = []
-    for name in fixture.loop:
-        part = fixture.parts[name]
-        if part.kind == "resistor":
-            keys.append((name, "value"))
-        elif part.kind == "inductor":
-            keys.append((name, "dcr"))
-        elif part.kind in ("switch", "wire"):
-            keys.append((name, "resistance"))
-    return tuple(keys)
+    capacitor (each kind's ``dc_resistance`` fields: resistor values, winding, switch
+    and wire resistances), in loop order."""
+    return tuple(
+        (name, field_name)
+        for name in fixture.loop
+        for field_name in PART_KINDS[fixture.parts[name].kind].dc_resistance
+    )
+
+
+def ac_series_keys(fixture: Fixture) -> tuple[ParameterKey, ...]:
+    """Keys of the series resistances a DC ohmmeter does not see, which only add loss
+    while the loop rings (each kind's ``ac_resistance`` fields: capacitor ESR), in loop
+    order."""
+    return tuple(
+        (name, field_name)
+        for name in fixture.loop
+        for field_name in PART_KINDS[fixture.parts[name].kind].ac_resistance
+    )
 
 
 def series_resistance_keys(fixture: Fixture) -> tuple[ParameterKey, ...]:
-    """Every key that adds to the loop's series resistance (DC ones, ESR, extra loss)."""
-    keys = list(dc_series_keys(fixture))
-    keys += [(n, "esr") for n in fixture.loop if fixture.parts[n].kind == "capacitor"]
-    keys.append(EXTRA_RESISTANCE)
-    return tuple(keys)
+    """Every key that adds to the loop's series resistance: the DC ones, then the AC-only
+    ones (ESR), then the extra loss."""
+    return (*dc_series_keys(fixture), *ac_series_keys(fixture), EXTRA_RESISTANCE)
 
 
 def series_resistance(fixture: Fixture, parameters: ParameterSet) -> float:
@@ -167,7 +158,7 @@ def measured_bounds(fixture: Fixture, key: ParameterKey) -> tuple[float, float, 
     if part is None or key[1] != "value" or part.measured is None:
         return None
     value = part.measured
-    if part.kind == "resistor":
+    if PART_KINDS[part.kind].two_wire:
         sigma = meter_uncertainty(part.meter.reading if part.meter else value)
     else:
         sigma = 0.01 * abs(value)
@@ -202,7 +193,7 @@ def _apply_loop_reading(
     sigma = meter_uncertainty(fixture.loop_reading.reading)
     if len(unknown) == 1 and remainder > 0:
         parameters = parameters.with_values({unknown[0]: remainder}, ORIGIN_MEASURED + " (DC loop reading)")
-        notes.append(f"{unknown[0][0]}.{unknown[0][1]} set from the DC loop reading")
+        notes.append(f"{key_label(unknown[0])} set from the DC loop reading")
     elif remainder > sigma:
         parameters = parameters.with_values(
             {EXTRA_RESISTANCE: remainder}, "DC loop reading minus itemised resistances"
@@ -334,7 +325,7 @@ def _guess(
     if key[1] == "value" and part is not None and part.nominal:
         return part.nominal, part.nominal / 10.0, part.nominal * 10.0
     if key[1] == "value" and part is not None and hint is not None and hint.omega0 > 0:
-        other = _other_reactance(fixture, parameters, part.kind)
+        other = _other_reactance(fixture, parameters, PART_KINDS[part.kind].unit)
         if other:
             start = 1.0 / (hint.omega0**2 * other)
             return start, start / 10.0, start * 10.0
@@ -342,15 +333,23 @@ def _guess(
     return typical, 0.0, typical * 1e3
 
 
-def _other_reactance(fixture: Fixture, parameters: ParameterSet, kind: str) -> float | None:
-    """Series total of the other reactive kind (C for an inductor, L for a capacitor)."""
-    other_kind = "capacitor" if kind == "inductor" else "inductor" if kind == "capacitor" else None
+#: The reactance that rings against each: a capacitance against an inductance.
+_RINGS_WITH = {"H": "F", "F": "H"}
+
+
+def _other_reactance(
+    fixture: Fixture, parameters: ParameterSet, unit: str | None
+) -> float | None:
+    """Series total of the other reactive values in the loop: the capacitances for an
+    inductance (``unit`` ``"H"``), the inductances for a capacitance (``"F"``); None
+    when there is none or ``unit`` is not reactive."""
+    other = _RINGS_WITH.get(unit or "")
     values = [parameters.get((n, "value")) for n in fixture.loop
-              if fixture.parts[n].kind == other_kind]
+              if other is not None and PART_KINDS[fixture.parts[n].kind].unit == other]
     values = [v for v in values if v]
     if not values:
         return None
-    if other_kind == "capacitor":
+    if other == "F":  # capacitances in series add as reciprocals
         return 1.0 / sum(1.0 / v for v in values)
     return float(sum(values))
 
@@ -366,13 +365,14 @@ def _reactive_free(fixture: Fixture, parameters: ParameterSet,
     free = []
     for name in fixture.loop:
         part = fixture.parts[name]
-        if part.kind not in ("capacitor", "inductor") or part.measured is not None:
+        unit = PART_KINDS[part.kind].unit
+        if unit not in _RINGS_WITH or part.measured is not None:
             continue
         value = parameters.get((name, "value"))
         if not value:
             continue  # written "?": already free
         lower, upper = value / 3.0, value * 3.0
-        other = _other_reactance(fixture, parameters, part.kind)
+        other = _other_reactance(fixture, parameters, unit)
         if hint is not None and hint.omega0 > 0 and other:
             implied = 1.0 / (hint.omega0**2 * other)
             lower, upper = min(lower, implied / 2.0), max(upper, implied * 2.0)
@@ -414,115 +414,57 @@ def _required_value_keys(fixture: Fixture) -> list[ParameterKey]:
 def build_candidates(fixture: Fixture, hint: RingHint | None = None) -> list[Candidate]:
     """Default ladder plus the fixture's own ``[candidates]``, minus dropped defaults.
 
+    The fixture reader has already checked the ``[candidates]`` table
+    (:mod:`xcheck.fixture.candidates_table`); what is left is what depends on the
+    ladder itself.
+
     Raises
     ------
     FixtureError
-        When the ``[candidates]`` table is malformed (all problems reported together).
+        When ``drop`` or a ``base`` names a default rung this fixture's ladder leaves
+        out (``all-unknowns`` when nothing is unknown and both reactive values are
+        measured); all such problems are reported together.
     """
     ladder = default_ladder(fixture, hint)
-    spec = fixture.extras.get("candidates")
-    if spec is None:
-        return ladder
-    source = str(fixture.source or "fixture")
-    problems: list[str] = []
-    if not isinstance(spec, Mapping):
-        raise FixtureError(source, ["candidates must be a table, e.g. [candidates.my-model]"])
+    table = fixture.candidates
     by_name = {c.name: c for c in ladder}
-    drop = spec.get("drop", [])
-    if not isinstance(drop, list) or not all(isinstance(d, str) for d in drop):
-        problems.append("candidates.drop must be a list of candidate names")
-        drop = []
-    for d in drop:
-        if d not in by_name:
-            problems.append(f"candidates.drop names {d!r}; the defaults are {', '.join(DEFAULT_NAMES)}")
-    custom: list[Candidate] = []
-    for name, body in spec.items():
-        if name == "drop":
-            continue
-        made = _custom_candidate(fixture, name, body, by_name, problems)
-        if made is not None:
-            custom.append(made)
+    problems = [
+        f"candidates.drop names {d!r}; the defaults are {', '.join(DEFAULT_NAMES)}"
+        for d in table.drop
+        if d not in by_name
+    ]
+    problems += [
+        f"candidates.{spec.name}.base is {spec.base!r}; use one of {', '.join(DEFAULT_NAMES)}"
+        for spec in table.specs
+        if spec.base not in by_name
+    ]
     if problems:
-        raise FixtureError(source, problems)
-    return [c for c in ladder if c.name not in drop] + custom
-
-
-def _parse_key(fixture: Fixture, text: object, where: str, problems: list[str]) -> ParameterKey | None:
-    if not isinstance(text, str) or "." not in text:
-        problems.append(f"{where}: {text!r} should be 'PART.FIELD', e.g. 'C1.esr' or 'loop.extra_resistance'")
-        return None
-    part, field_name = text.split(".", 1)
-    if part == "loop" and field_name in ("extra_resistance", "extra_inductance"):
-        return (part, field_name)
-    if part not in fixture.parts:
-        problems.append(f"{where}: no part {part!r} in this fixture (parts: {', '.join(fixture.loop)})")
-        return None
-    row = PART_KINDS[fixture.parts[part].kind]
-    allowed = (["value"] if row.unit else []) + list(row.parasitics)
-    if field_name not in allowed:
-        problems.append(f"{where}: a {row.kind} has no {field_name!r}; use one of {', '.join(allowed)}")
-        return None
-    return (part, field_name)
+        raise FixtureError(str(fixture.source or "fixture"), problems)
+    custom = [_custom_candidate(fixture, spec, by_name) for spec in table.specs]
+    return [c for c in ladder if c.name not in table.drop] + custom
 
 
 def _custom_candidate(
-    fixture: Fixture,
-    name: str,
-    body: object,
-    by_name: dict[str, Candidate],
-    problems: list[str],
-) -> Candidate | None:
-    where = f"candidates.{name}"
-    if not isinstance(body, Mapping):
-        problems.append(f"{where} must be a table with base, free, description and optional set")
-        return None
-    unknown_keys = set(body) - {"base", "free", "description", "set", "release"}
-    if unknown_keys:
-        problems.append(f"{where}: unknown keys {sorted(unknown_keys)}; allowed: base, free, "
-                        "description, set, release")
-    base_name = body.get("base", "as-measured")
-    if base_name not in by_name:
-        problems.append(f"{where}.base is {base_name!r}; use one of {', '.join(DEFAULT_NAMES)}")
-        return None
-    base = by_name[base_name]
-    parameters = base.parameters
-    settings = body.get("set", {})
-    if not isinstance(settings, Mapping):
-        problems.append(f"{where}.set must be a table of 'PART.FIELD' = value")
-        settings = {}
-    updates = {}
-    for text, raw in settings.items():
-        key = _parse_key(fixture, text, f"{where}.set", problems)
-        if key is None:
-            continue
-        try:
-            updates[key] = parse_value(raw, unit=unit_of(fixture, key))
-        except ValueParseError as exc:
-            problems.append(f"{where}.set.{text}: {exc}")
-    parameters = parameters.with_values(updates, "set by candidate") if updates else parameters
-    free_list = body.get("free", [])
-    if not isinstance(free_list, list):
-        problems.append(f"{where}.free must be a list such as [\"C1.esr\"]")
-        free_list = []
-    release = body.get("release", [])
-    if not isinstance(release, list) or not all(isinstance(r, str) for r in release):
-        problems.append(f"{where}.release must be a list such as [\"R1.value\"]")
-        release = []
+    fixture: Fixture, spec: CandidateSpec, by_name: dict[str, Candidate]
+) -> Candidate:
+    """The candidate a fixture's ``[candidates.NAME]`` record describes."""
+    parameters = by_name[spec.base].parameters
+    if spec.settings:
+        parameters = parameters.with_values(spec.settings, "set by candidate")
     free = []
-    for text in free_list:
-        key = _parse_key(fixture, text, f"{where}.free", problems)
-        if key is None:
-            continue
+    for key in spec.free:
         unit = unit_of(fixture, key)
         if key == EXTRA_RESISTANCE:
             free.append(_extra_loss_parameter(fixture, parameters))
             continue
         start, lower, upper = _guess(fixture, key, unit, parameters)
-        reason = f"free in {name}"
+        reason = f"free in {spec.name}"
         held = measured_bounds(fixture, key)
-        if held is not None and text not in release:
+        if held is not None and key not in spec.release:
             start, lower, upper = held
             reason += "; held within its measurement uncertainty (list it in release to free it)"
         free.append(FreeParameter(key, start, lower, upper, unit, reason=reason))
-    description = str(body.get("description", f"fixture's own candidate based on {base_name}"))
-    return _checked(fixture, name, description, parameters, tuple(free))
+    description = spec.description
+    if description is None:
+        description = f"fixture's own candidate based on {spec.base}"
+    return _checked(fixture, spec.name, description, parameters, tuple(free))

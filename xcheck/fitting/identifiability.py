@@ -16,7 +16,8 @@ from typing import Sequence
 
 import numpy as np
 
-from xcheck.circuit.parameters import ParameterSet, label_key
+from xcheck.circuit.parameters import ParameterSet
+from xcheck.fixture.schema import label_key
 from xcheck.fitting.stats import correlation_from_covariance, covariance_from_jacobian
 
 #: Singular-value ratio below which a direction counts as undetermined. Finite-difference

@@ -1,149 +1,32 @@
-"""Render a :class:`~xcheck.compare.Comparison` as ``report.md``, PNGs and ``summary.json``.
+"""Render a :class:`~xcheck.outcome.Comparison` as ``report.md``, PNGs and ``summary.json``.
 
 The folder is written atomically: everything goes into a temporary sibling folder that
 replaces the target only when complete. An existing folder is replaced only when it is
 an earlier xcheck report (it holds a ``summary.json`` that says so); anything else is
 left alone and reported as an error.
 
-``summary.json`` schema (version 1, stable; new keys may be added, none renamed):
-
-- ``schema`` ("xcheck-summary"), ``schema_version`` (1), ``tool`` {name, version}
-- ``best``: name of the top-ranked candidate, or null when all failed
-- ``verdict``: the verdict paragraph
-- ``candidates``: list, best first, of {``name``, ``description``, ``rank`` (int or
-  null), ``failed`` (bool), ``failure_reason``, ``nrmse``, ``rmse_volts``,
-  ``max_error_volts``, ``aic``, ``bic``, ``delta_bic``, ``evidence``, ``fitted`` (object:
-  "PART.FIELD" -> SI value), ``fitted_stderr`` (same keys), ``series_resistance_ohm``,
-  ``damped_frequency_hz``, ``neper_frequency_per_s``, ``engines`` {theory, ngspice: {rmse,
-  nrmse, max_error, aic, bic, damped_frequency_error_hz, neper_frequency_error_per_s} or
-  null}, ``engine_disagreement`` (max |ngspice - theory| / amplitude),
-  ``undetermined`` (list of {members, combination, value, stderr, unit, reason})}
-- ``measured``: {``kind``, ``damped_frequency_hz``, ``neper_frequency_per_s``,
-  ``initial_volts`` (each {value, stderr}), ``envelope_exponential`` (bool),
-  ``flagged_extrema`` (0-based indices in time order), ``findings``, ``alignment``}
-- ``inputs``: list of {role, path, sha256}; ``versions``; ``seeds``; ``safety``.
-All numbers are SI (s, V, ohm, H, F, Hz, 1/s); non-finite numbers are written as null.
+``summary.json`` is built by :mod:`xcheck.report.summary` (its schema is documented
+there); the markdown is rendered from the same data.
 """
 
 from __future__ import annotations
 
-import json
 import math
-import platform
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
-from xcheck import __version__
-from xcheck.compare import CandidateOutcome, Comparison
+from xcheck.outcome import Comparison
 from xcheck.atomic import REPORT_HINT, report_folder_is_ours, write_folder_atomically
 from xcheck.report.figures import envelope_figure, overlay_figure, residual_figure
-from xcheck.circuit.parameters import label_key
+from xcheck.fixture.schema import label_key
+from xcheck.report.summary import SCHEMA, summary, summary_text
 from xcheck.safety import CAUTION, assess
 from xcheck.values import format_eng
 
-SCHEMA = "xcheck-summary"
-SCHEMA_VERSION = 1
 FIGURES = ("overlay.png", "residuals.png", "envelope.png")
 NUISANCE_UNITS = {"offset": "V", "shift": "s", "time_origin": "s"}
-
-
-def _finite(value: Any) -> Any:
-    if isinstance(value, (float, np.floating)):
-        return float(value) if math.isfinite(value) else None
-    return value
-
-
-def versions(comparison: Comparison) -> dict[str, str]:
-    """Versions of the tool and of the libraries that made the numbers."""
-    import scipy
-
-    return {
-        "xcheck": __version__,
-        "ngspice": comparison.ngspice_version or "not used",
-        "numpy": np.__version__,
-        "scipy": scipy.__version__,
-        "python": platform.python_version(),
-    }
-
-
-def _engine_json(metrics) -> dict[str, Any] | None:
-    if metrics is None:
-        return None
-    return {
-        "rmse": _finite(metrics.rmse),
-        "nrmse": _finite(metrics.nrmse),
-        "max_error": _finite(metrics.max_error),
-        "aic": _finite(metrics.aic),
-        "bic": _finite(metrics.bic),
-        "damped_frequency_error_hz": _finite(metrics.damped_frequency_error_hz),
-        "neper_frequency_error_per_s": _finite(metrics.neper_frequency_error_per_s),
-    }
-
-
-def _candidate_json(outcome: CandidateOutcome) -> dict[str, Any]:
-    fit = outcome.fit
-    theory = outcome.theory
-    second = outcome.second_order
-    return {
-        "name": outcome.name,
-        "description": outcome.candidate.description,
-        "rank": outcome.ranked.rank,
-        "failed": bool(outcome.failed),
-        "failure_reason": fit.message if outcome.failed else None,
-        "nrmse": _finite(theory.nrmse) if theory else None,
-        "rmse_volts": _finite(theory.rmse) if theory else None,
-        "max_error_volts": _finite(theory.max_error) if theory else None,
-        "aic": _finite(fit.aic),
-        "bic": _finite(fit.bic),
-        "delta_bic": _finite(outcome.ranked.delta_bic),
-        "evidence": outcome.ranked.evidence,
-        "fitted": {v.label: _finite(v.value) for v in fit.fitted},
-        "fitted_stderr": {v.label: _finite(v.stderr) for v in fit.fitted},
-        "series_resistance_ohm": _finite(outcome.series_resistance_ohm),
-        "damped_frequency_hz": _finite(second.omega_d / (2 * math.pi)) if second else None,
-        "neper_frequency_per_s": _finite(second.alpha) if second else None,
-        "engines": {"theory": _engine_json(outcome.theory), "ngspice": _engine_json(outcome.ngspice)},
-        "engine_disagreement": _finite(outcome.engine_disagreement),
-        "undetermined": [
-            {
-                "members": list(d.members),
-                "combination": d.combination,
-                "value": _finite(d.value),
-                "stderr": _finite(d.stderr),
-                "unit": d.unit,
-                "reason": d.reason,
-            }
-            for d in fit.degeneracies
-        ],
-    }
-
-
-def summary(comparison: Comparison) -> dict[str, Any]:
-    """The ``summary.json`` content (see the module docstring for the schema)."""
-    best = comparison.best
-    measured = comparison.measured
-    safety = assess(comparison.fixture)
-    return {
-        "schema": SCHEMA,
-        "schema_version": SCHEMA_VERSION,
-        "tool": {"name": "xcheck", "version": __version__},
-        "title": comparison.fixture.title,
-        "best": best.name if best else None,
-        "verdict": comparison.verdict,
-        "candidates": [_candidate_json(o) for o in comparison.outcomes],
-        "measured": measured.to_json(),
-        "loop_findings": list(comparison.loop_findings),
-        "inputs": [{"role": i.role, "path": i.path, "sha256": i.sha256} for i in comparison.inputs],
-        "versions": versions(comparison),
-        "seeds": dict(comparison.seeds),
-        "safety": {
-            "max_volts": _finite(safety.max_volts),
-            "stored_energy_joules": _finite(safety.stored_energy_joules),
-            "hazardous": safety.hazardous,
-        },
-    }
 
 
 def _pct(value: float | None) -> str:
@@ -289,8 +172,7 @@ def write_report(comparison: Comparison, folder: str | Path) -> Path:
     def fill(staging: Path) -> None:
         data = summary(comparison)
         _write_figures(comparison, staging)
-        (staging / "summary.json").write_text(json.dumps(data, indent=2, allow_nan=False) + "\n",
-                                              encoding="utf-8")
+        (staging / "summary.json").write_text(summary_text(data), encoding="utf-8")
         (staging / "report.md").write_text(markdown(comparison, data), encoding="utf-8")
 
     return write_folder_atomically(Path(folder), fill,

@@ -188,10 +188,10 @@ def parabola_vertex(c2: float, c1: float, c0: float, var_c1: float = 0.0) -> tup
 
 
 def extrema_near(time: np.ndarray, volts: np.ndarray, targets: np.ndarray,
-                 halfwidth: float) -> tuple[np.ndarray, np.ndarray]:
+                 halfwidth: float, level: float = 0.0) -> tuple[np.ndarray, np.ndarray]:
     """Turning points of a noise-free waveform (a simulator's) near expected times.
 
-    For each target time the largest-magnitude sample within ``halfwidth`` is taken and
+    For each target time the sample farthest from ``level`` within ``halfwidth`` is taken and
     refined by the parabola through it and its two neighbours (interpolation, not a
     least-squares fit: there is no noise to average); the refinement is kept when its
     vertex lies within the three samples' span. Where no sample lies within
@@ -205,6 +205,10 @@ def extrema_near(time: np.ndarray, volts: np.ndarray, targets: np.ndarray,
         Expected times of the turning points (s).
     halfwidth
         Search half-width around each target (s).
+    level
+        The level the waveform oscillates about (V): 0 for a natural response, the
+        settled value for a step, where a trough is still above zero and the largest
+        magnitude in its window would be the window's edge.
 
     Returns
     -------
@@ -218,7 +222,7 @@ def extrema_near(time: np.ndarray, volts: np.ndarray, targets: np.ndarray,
         if window.size == 0:
             out_t[i], out_v[i] = target, float(np.interp(target, time, volts))
             continue
-        j = window[np.argmax(np.abs(volts[window]))]
+        j = window[np.argmax(np.abs(volts[window] - level))]
         out_t[i], out_v[i] = time[j], volts[j]
         if 0 < j < time.size - 1:
             t3, v3 = time[j - 1:j + 2], volts[j - 1:j + 2]

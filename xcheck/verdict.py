@@ -1,0 +1,218 @@
+"""The words of the verdict: the paragraph a reviewer reads, and the loop findings.
+
+:func:`write_loop_findings` says how much series loss the best candidate needs beyond
+the DC loop reading; :func:`write_verdict` composes the verdict paragraph from the ranked
+outcomes, the measured-side findings and those loop findings. Both only read
+:mod:`xcheck.outcome` records; :mod:`xcheck.compare` runs the comparison and calls them.
+"""
+
+from __future__ import annotations
+
+import math
+
+from xcheck.fixture.schema import label_key
+from xcheck.fitting.candidates import dc_series_keys, describe_key, meter_uncertainty
+from xcheck.fixture.model import Fixture
+from xcheck.measured import Measured
+from xcheck.outcome import CandidateOutcome
+from xcheck.values import format_eng
+
+def write_loop_findings(fixture: Fixture, outcomes: list[CandidateOutcome]) -> list[str]:
+    """How much series loss the best fit needs beyond the DC loop reading.
+
+    Parameters
+    ----------
+    fixture
+        The fixture; its ``[loop_reading]`` (if any) and itemised DC resistances.
+    outcomes
+        Every candidate's outcome; the one ranked 1 is the best.
+
+    Returns
+    -------
+    list of str
+        One sentence, or none when no candidate could be fitted.
+    """
+    findings: list[str] = []
+    best = next((o for o in outcomes if o.ranked.rank == 1), None)
+    if best is None or best.fit.parameters is None:
+        return findings
+    total = best.series_resistance_ohm
+    if fixture.loop_reading is not None:
+        dc = fixture.loop_reading.value
+        esr = sum(best.fit.parameters.get((n, "esr"), 0.0) or 0.0 for n in fixture.loop
+                  if fixture.parts[n].kind == "capacitor")
+        beyond = total - dc - esr
+        sigma = meter_uncertainty(fixture.loop_reading.reading)
+        head = (f"The DC loop reading accounts for {format_eng(dc, 'ohm')} of the "
+                f"{format_eng(total, 'ohm')} series resistance the best candidate needs, and "
+                f"stated ESR for {format_eng(esr, 'ohm')}")
+        if beyond > 2 * sigma:
+            findings.append(
+                f"{head}, leaving {format_eng(beyond, 'ohm')} of loss beyond what DC "
+                "measurements explain (AC loss: skin and proximity effect, core loss, "
+                "dielectric loss, contact resistance that changed)."
+            )
+        elif beyond < -2 * sigma:
+            findings.append(
+                f"{head}: together {format_eng(-beyond, 'ohm')} MORE than the ringing shows. "
+                "A stated ESR or the loop reading is too high (check the lead zero and the "
+                "contacts during the reading), or the capacitor was not at the temperature "
+                "or frequency its ESR was stated for."
+            )
+        else:
+            findings.append(
+                f"{head}: together they explain the damping within the loop reading's "
+                f"uncertainty (about {format_eng(sigma, 'ohm')})."
+            )
+    else:
+        dc_known = sum(best.fit.parameters.get(k, 0.0) or 0.0 for k in dc_series_keys(fixture))
+        findings.append(
+            f"Itemised DC resistances add up to {format_eng(dc_known, 'ohm')}; the best "
+            f"candidate needs {format_eng(total, 'ohm')} in all. A DC loop reading "
+            "([loop_reading]) would show how much of it is beyond DC."
+        )
+    return findings
+
+
+def _sentence(text: str) -> str:
+    text = text.strip()
+    if not text:
+        return text
+    text = text[0].upper() + text[1:]
+    return text if text[-1] in ".!?" else text + "."
+
+
+def _against_label(fixture: Fixture, value) -> str:
+    """'' or ' (label 470 µH: -3.8 %, inside its 10 % tolerance)' for a part's own value."""
+    part_name, field_name = value.key
+    part = fixture.parts.get(part_name)
+    if part is None or field_name != "value" or not part.nominal:
+        return ""
+    change = value.value / part.nominal - 1.0
+    text = f" (label {format_eng(part.nominal, value.unit)}: {change:+.1%}"
+    if part.tolerance is not None:
+        inside = abs(change) <= part.tolerance
+        text += f", {'inside' if inside else 'OUTSIDE'} its {part.tolerance:.0%} tolerance"
+    return text + ")"
+
+
+def _degeneracy_sentences(fixture: Fixture, outcome: CandidateOutcome) -> list[str]:
+    sentences = []
+    for group in outcome.fit.degeneracies:
+        names = [describe_key(fixture, label_key(m)) for m in group.members]
+        if group.combination == "sum" and math.isfinite(group.value):
+            sentences.append(
+                f"In '{outcome.name}' the data determine only the sum {' + '.join(names)} = "
+                f"{format_eng(group.value, group.unit)} ± {format_eng(group.stderr, group.unit)}, "
+                "not the parts separately"
+            )
+        elif group.combination == "product" and math.isfinite(group.value):
+            sentences.append(
+                f"In '{outcome.name}' the data determine only the product {' × '.join(names)} "
+                f"= {group.value:.4g} {group.unit} (± {group.stderr:.2g}), not the values separately"
+            )
+        else:
+            sentences.append(
+                f"In '{outcome.name}' {', '.join(names)} trade against each other (correlation "
+                "beyond 0.999): this measurement pins only a combination of them, so each one's "
+                "standard error is large"
+            )
+    return sentences
+
+
+#: Residuals beyond this multiple of the noise mean no candidate explains the data.
+MISFIT_LIMIT = 3.0
+
+
+def _misfit(best: CandidateOutcome, measured: Measured) -> float | None:
+    """Residual RMS over noise (trace) or sqrt(reduced chi-square) (peaks) of the best
+    candidate, when it exceeds :data:`MISFIT_LIMIT`; else None."""
+    fit = best.fit
+    if fit.residuals is None or fit.n <= fit.k:
+        return None
+    if measured.kind == "trace":
+        noise = measured.estimate.noise_sigma
+        ratio = fit.rmse / noise if noise > 0 else float("inf")
+    else:
+        ratio = math.sqrt(max(fit.bic - fit.k * math.log(fit.n), 0.0) / (fit.n - fit.k))
+    return ratio if ratio > MISFIT_LIMIT else None
+
+
+def write_verdict(fixture: Fixture, measured: Measured, outcomes: list[CandidateOutcome],
+                  loop_findings: tuple[str, ...]) -> str:
+    """One paragraph a reviewer can read: best candidate, the fitted extra, how much
+    worse the as-measured model does, and the measured-side findings.
+
+    Parameters
+    ----------
+    fixture
+        The fixture (part names, labels and tolerances for the wording).
+    measured
+        The measurement; its findings end the paragraph and its noise sets the misfit
+        test (:data:`MISFIT_LIMIT`).
+    outcomes
+        Every candidate's outcome, best first.
+    loop_findings
+        Sentences from :func:`write_loop_findings`.
+
+    Returns
+    -------
+    str
+        The verdict paragraph.
+    """
+    best = next((o for o in outcomes if o.ranked.rank == 1), None)
+    if best is None:
+        return ("No candidate could be fitted to this measurement; see each candidate's "
+                "reason below.")
+    parts = []
+    misfit = _misfit(best, measured)
+    if misfit is not None:
+        parts.append(
+            f"NO candidate explains this measurement within its noise: the best, "
+            f"'{best.name}', leaves residuals {misfit:.1f} times the noise. Check that the "
+            "fixture describes this capture (natural or step response, the probed part, "
+            "probe polarity and attenuation, the channel) before reading the numbers below"
+        )
+    lead = "The closest candidate" if misfit is not None else (
+        "The best explanation of the measurement")
+    parts.append(f"{lead} is candidate '{best.name}' ({best.candidate.description})")
+    if best.theory is not None:
+        parts[-1] += f", NRMSE {best.theory.nrmse:.2%}"
+    parts[-1] += "."
+    for value in best.fit.fitted:
+        if any(value.label in d.members and d.combination in ("sum", "product")
+               for d in best.fit.degeneracies):
+            continue
+        parts.append(
+            f"Fitted {describe_key(fixture, value.key)} = {format_eng(value.value, value.unit)} ± "
+            f"{format_eng(value.stderr, value.unit)}{_against_label(fixture, value)}."
+        )
+    parts.extend(_degeneracy_sentences(fixture, best))
+    for other in outcomes:
+        if other is best or other.failed or other.ranked.evidence != "not distinguishable":
+            continue
+        parts.append(
+            f"Candidate '{other.name}' explains the measurement as well "
+            f"(ΔBIC = {other.ranked.delta_bic:.1f}, not distinguishable)"
+        )
+        parts.extend(_degeneracy_sentences(fixture, other))
+    as_measured = next((o for o in outcomes if o.name == "as-measured"), None)
+    if as_measured is not None and as_measured is not best:
+        if as_measured.failed:
+            parts.append(f"The as-measured model could not be fitted ({as_measured.fit.message}).")
+        else:
+            parts.append(
+                f"The as-measured model does worse by ΔBIC = {as_measured.ranked.delta_bic:.1f} "
+                f"({as_measured.ranked.evidence} evidence against it)"
+                + (f", NRMSE {as_measured.theory.nrmse:.2%}" if as_measured.theory else "")
+                + "."
+            )
+    parts.extend(loop_findings)
+    parts.extend(measured.findings)
+    parts = [_sentence(p) for p in parts]
+    if best.engines_disagree:
+        parts.append(
+            f"Warning: ngspice and theory differ by {best.engine_disagreement:.2%} of the "
+            "amplitude for this candidate, more than numerical precision."
+        )
+    return " ".join(parts)
