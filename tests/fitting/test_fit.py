@@ -17,26 +17,18 @@ from scipy import signal
 
 from xcheck.fitting.candidates import Candidate, RingHint, build_candidates
 from xcheck.fitting.fit import fit_candidate
+from compare_cases import data_text, variant
+
 from xcheck.fitting.observation import PeakObservation, TraceObservation
 from xcheck.fixture.reader import parse_fixture_text
 
 #: Invented example: the loop states 1 ohm; the event really had 1.3 ohm.
-STATED = '''\
-title = "series RLC with a hidden loss (invented example)"
-response = "natural"
-loop = ["C1", "R1", "L1"]
-probe = "C1"
-[parts.C1]
-kind = "capacitor"
-nominal = "10u"
-initial = "12"
-[parts.R1]
-kind = "resistor"
-nominal = "1"
-[parts.L1]
-kind = "inductor"
-nominal = "220u"
-'''
+STATED = variant(
+    data_text("series_rlc.toml"),
+    ('title = "series RLC (invented example)"',
+     'title = "series RLC with a hidden loss (invented example)"'),
+    ('nominal = "1.3"', 'nominal = "1"'),
+)
 V0, L, C = 12.0, 220e-6, 10e-6
 HIDDEN_EXTRA = 0.3
 R_TRUE = 1.0 + HIDDEN_EXTRA

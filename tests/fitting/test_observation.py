@@ -17,26 +17,13 @@ import pytest
 from xcheck.circuit.expand import build_circuit
 from xcheck.circuit.parameters import parameters_from_fixture
 from xcheck.engines.theory import simulate_theory
+from compare_cases import data_text
+
 from xcheck.fitting.observation import PeakObservation, TraceObservation
 from xcheck.fixture.reader import parse_fixture_text
 
 #: Invented example: a 10 uF capacitor charged to 12 V rings through 1.3 ohm and 220 uH.
-SERIES_RLC = '''\
-title = "series RLC (invented example)"
-response = "natural"
-loop = ["C1", "R1", "L1"]
-probe = "C1"
-[parts.C1]
-kind = "capacitor"
-nominal = "10u"
-initial = "12"
-[parts.R1]
-kind = "resistor"
-nominal = "1.3"
-[parts.L1]
-kind = "inductor"
-nominal = "220u"
-'''
+SERIES_RLC = data_text("series_rlc.toml")
 V0, R, L, C = 12.0, 1.3, 220e-6, 10e-6
 ALPHA = R / (2 * L)
 OMEGA_D = math.sqrt(1 / (L * C) - ALPHA**2)
