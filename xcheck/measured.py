@@ -18,6 +18,7 @@ from typing import ClassVar
 import numpy as np
 
 from xcheck.capture.align import Alignment, align_trace
+from xcheck.fitting.fit import FitResult
 from xcheck.fitting.observation import Observation, PeakObservation, TraceObservation
 from xcheck.fixture.model import Fixture
 from xcheck.ringdown import RingdownEstimate, estimate_from_peaks, estimate_ringdown
@@ -119,6 +120,11 @@ class Measured(ABC):
     def observation(self, max_points: int = 20_000) -> Observation:
         """What candidates are fitted to, decimated evenly to at most ``max_points``."""
 
+    @abstractmethod
+    def misfit_ratio(self, fit: FitResult) -> float:
+        """How far the fit misses, in units of the measurement's own error (see the
+        subclasses); call only when ``fit.n > fit.k``."""
+
     def envelope(self) -> Envelope:
         """Extrema magnitudes about the fitted offset, for the envelope figure."""
         est = self.estimate
@@ -153,6 +159,12 @@ class MeasuredTrace(Measured):
         return TraceObservation(self.time[index], self.voltage[index],
                                 float(self.estimate.noise_sigma), period, max(n_eff, 2.0))
 
+    def misfit_ratio(self, fit: FitResult) -> float:
+        """The fit's residual RMS over the pre-event noise (1 when the model explains
+        the trace down to the noise)."""
+        noise = self.estimate.noise_sigma
+        return fit.rmse / noise if noise > 0 else float("inf")
+
 
 @dataclass(frozen=True)
 class MeasuredPeaks(Measured):
@@ -169,6 +181,12 @@ class MeasuredPeaks(Measured):
                  else np.full(self.voltage.shape, self.estimate.noise_sigma))
         return PeakObservation(self.time, self.voltage, sigma, period,
                                time_sigma=_time_scatter(self.time, period, self.time_resolution))
+
+    def misfit_ratio(self, fit: FitResult) -> float:
+        """sqrt(reduced chi-square) of the fit (1 when the readings scatter as their
+        stated errors say); the chi-square is the BIC less its k ln n penalty, since a
+        peak table's deviance is its chi-square."""
+        return math.sqrt(max(fit.bic - fit.k * math.log(fit.n), 0.0) / (fit.n - fit.k))
 
 
 def _time_scatter(time: np.ndarray, period: float, resolution: float | None = None) -> float:

@@ -130,11 +130,7 @@ def _misfit(best: CandidateOutcome, measured: Measured) -> float | None:
     fit = best.fit
     if fit.residuals is None or fit.n <= fit.k:
         return None
-    if measured.kind == "trace":
-        noise = measured.estimate.noise_sigma
-        ratio = fit.rmse / noise if noise > 0 else float("inf")
-    else:
-        ratio = math.sqrt(max(fit.bic - fit.k * math.log(fit.n), 0.0) / (fit.n - fit.k))
+    ratio = measured.misfit_ratio(fit)
     return ratio if ratio > MISFIT_LIMIT else None
 
 
