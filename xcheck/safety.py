@@ -11,6 +11,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from xcheck.fixture.model import Fixture
+from xcheck.fixture.schema import PART_KINDS
 from xcheck.values import format_eng
 
 HAZARDOUS_VOLTS = 60.0
@@ -56,11 +57,12 @@ def assess(fixture: Fixture) -> SafetyAssessment:
         if part.initial is None:
             continue
         value = part.measured if part.measured is not None else part.nominal
-        if part.kind == "capacitor":
+        # A stored-energy part's ``initial`` is a voltage (C: E = C V^2 / 2) or a current
+        # (L: E = L I^2 / 2), as its schema row says.
+        initial_unit = PART_KINDS[part.kind].initial_unit
+        if initial_unit == "V":
             volts = max(volts, abs(part.initial))
-            if value:
-                energy += 0.5 * value * part.initial**2
-        elif part.kind == "inductor" and value:
+        if value and initial_unit in ("V", "A"):
             energy += 0.5 * value * part.initial**2
     if fixture.step is not None:
         volts = max(volts, abs(fixture.step.volts))

@@ -11,7 +11,7 @@ from __future__ import annotations
 import math
 
 from xcheck.fixture.schema import label_key
-from xcheck.fitting.candidates import dc_series_keys, describe_key, meter_uncertainty
+from xcheck.fitting.candidates import ac_series_keys, dc_series_keys, describe_key, meter_uncertainty
 from xcheck.fixture.model import Fixture
 from xcheck.measured import Measured
 from xcheck.outcome import CandidateOutcome
@@ -39,8 +39,7 @@ def write_loop_findings(fixture: Fixture, outcomes: list[CandidateOutcome]) -> l
     total = best.series_resistance_ohm
     if fixture.loop_reading is not None:
         dc = fixture.loop_reading.value
-        esr = sum(best.fit.parameters.get((n, "esr"), 0.0) or 0.0 for n in fixture.loop
-                  if fixture.parts[n].kind == "capacitor")
+        esr = sum(best.fit.parameters.get(key, 0.0) or 0.0 for key in ac_series_keys(fixture))
         beyond = total - dc - esr
         sigma = meter_uncertainty(fixture.loop_reading.reading)
         head = (f"The DC loop reading accounts for {format_eng(dc, 'ohm')} of the "
