@@ -48,8 +48,8 @@ def test_hidden_extra_loss_is_found_within_three_standard_errors(tmp_path, lossy
     assert best.series_resistance_ohm == pytest.approx(hidden_truth_series_resistance(),
                                                        abs=3 * extra.stderr)
     as_measured = result.outcome("as-measured")
-    assert as_measured.ranked.delta_bic > 10  # decisive (Kass & Raftery 1995)
-    assert as_measured.ranked.evidence == "decisive"
+    assert as_measured.ranked.delta_bic > 10  # very strong (Kass & Raftery 1995, 2 ln B > 10)
+    assert as_measured.ranked.evidence == "very strong"
 
 
 def test_peak_table_of_the_same_event_gives_the_same_verdict(tmp_path, lossy_fixture):

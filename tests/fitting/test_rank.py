@@ -16,8 +16,8 @@ from xcheck.fitting.rank import evidence_words, rank_by_bic
 @pytest.mark.parametrize(
     "delta, words",
     [(0.0, "not distinguishable"), (1.99, "not distinguishable"), (2.0, "positive"),
-     (5.9, "positive"), (6.0, "strong"), (10.0, "strong"), (10.01, "decisive"),
-     (250.0, "decisive"), (float("nan"), "not comparable")],
+     (5.9, "positive"), (6.0, "strong"), (10.0, "strong"), (10.01, "very strong"),
+     (250.0, "very strong"), (float("nan"), "not comparable")],
 )
 def test_evidence_scale_follows_kass_raftery(delta, words):
     assert evidence_words(delta) == words
@@ -31,7 +31,7 @@ def test_failed_candidates_rank_last_and_unranked():
     # Differences are exact sums of the inputs: tolerance is float rounding only.
     assert ranked[1].delta_bic == pytest.approx(5.0, abs=1e-12)
     assert ranked[1].evidence == "positive"
-    assert ranked[2].evidence == "decisive"
+    assert ranked[2].evidence == "very strong"
     assert ranked[3].evidence == "failed" and math.isnan(ranked[3].delta_bic)
 
 

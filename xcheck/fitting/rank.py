@@ -1,8 +1,10 @@
 """Rank candidates by BIC and put the evidence into words.
 
-Evidence scale for a BIC difference (Kass & Raftery, "Bayes Factors", JASA 1995):
-below 2 not worth more than a mention, 2 to 6 positive, 6 to 10 strong, above 10
-very strong (called *decisive* in xcheck's reports).
+Evidence scale for a BIC difference, read as twice the log Bayes factor (Kass & Raftery,
+"Bayes Factors", JASA 1995, their table on 2 ln B): below 2 "not worth more than a bare
+mention" (xcheck says *not distinguishable*), 2 to 6 "positive", 6 to 10 "strong", above
+10 "very strong". Their words are used as they are; "decisive" belongs to another scale
+(Jeffreys', on the Bayes factor itself) and is not used.
 """
 
 from __future__ import annotations
@@ -33,7 +35,7 @@ def evidence_words(delta_bic: float) -> str:
         return "positive"
     if delta_bic <= 10:
         return "strong"
-    return "decisive"
+    return "very strong"
 
 
 def rank_by_bic(names: Sequence[str], bics: Sequence[float], failed: Sequence[bool]) -> list[Ranked]:
