@@ -21,6 +21,7 @@ import math
 import re
 
 from xcheck.errors import ValueParseError
+from xcheck.quoting import excerpt, quoted
 
 #: Scale suffixes as listed in the ngspice manual's table of scale factors, plus the
 #: micro sign. Keys are lower case; matching is case-insensitive.
@@ -94,11 +95,14 @@ def parse_value(text: str | int | float, *, unit: str | None = None) -> float:
         suffix, the wrong unit, or is not finite.
     """
     if isinstance(text, bool):
-        raise ValueParseError(f"expected a number such as '4.7u', got the boolean {text!r}")
+        raise ValueParseError(f"expected a number such as '4.7u', got the boolean {_q(text)}")
     if isinstance(text, (int, float)):
-        value = float(text)
+        try:
+            value = float(text)
+        except OverflowError:  # an integer beyond the float range
+            value = math.inf
         if not math.isfinite(value):
-            raise ValueParseError(f"expected a finite number, got {text!r}")
+            raise ValueParseError(f"expected a finite number, got {_q(text)}")
         return value
     if not isinstance(text, str):
         raise ValueParseError(
@@ -108,23 +112,30 @@ def parse_value(text: str | int | float, *, unit: str | None = None) -> float:
     match = _VALUE_RE.fullmatch(stripped)
     if match is None:
         raise ValueParseError(
-            f"cannot read {text!r} as a value; expected a number with an optional "
+            f"cannot read {_q(text)} as a value; expected a number with an optional "
             "SPICE suffix (f p n u m k meg g t) and unit, e.g. '47u', '2.2meg', '10mH'"
         )
     suffix = match.group("suffix")
     if suffix == "M":
-        raise ValueParseError(f"{text!r}: {_M_TRAP_HELP}")
+        raise ValueParseError(f"{_q(text)}: {_M_TRAP_HELP}")
     found_unit = match.group("unit")
     value = _scaled(match.group("number"), suffix.lower() if suffix else "")
     if not math.isfinite(value):
-        raise ValueParseError(f"{text!r} is not a finite number")
+        raise ValueParseError(
+            f"{_q(text)} is not a finite number (it is beyond about 1.8e308, the largest "
+            "a double-precision float holds)")
     if found_unit and unit is not None:
         canonical = UNIT_ALIASES.get(found_unit.lower(), UNIT_ALIASES.get(found_unit))
         if canonical != unit:
             raise ValueParseError(
-                f"{text!r} is in {canonical}, but this value is in {unit}"
+                f"{_q(text)} is in {canonical}, but this value is in {unit}"
             )
     return value
+
+
+def _q(text: object) -> str:
+    """``text`` quoted for a message, cut to a short excerpt when long."""
+    return quoted(text) if isinstance(text, str) else excerpt(repr(text))
 
 
 def _scaled(number: str, suffix: str) -> float:
@@ -134,7 +145,12 @@ def _scaled(number: str, suffix: str) -> float:
     exponent = round(math.log10(scale))
     if suffix and 10.0**exponent == scale:
         mantissa, _, given = number.lower().partition("e")
-        return float(f"{mantissa}e{int(given or 0) + exponent}")
+        if len(given.lstrip("+-").lstrip("0")) > 6:  # far outside any float's range; keep
+            # int() away from a digit string it would refuse (over 4300 digits)
+            power = -(10**6) if given.startswith("-") else 10**6
+        else:
+            power = int(given or 0)
+        return float(f"{mantissa}e{power + exponent}")
     return float(number) * scale
 
 
@@ -163,18 +179,18 @@ def parse_tolerance(text: str | int | float) -> float:
         match = _PERCENT_RE.fullmatch(text.strip())
         if match is None:
             raise ValueParseError(
-                f"cannot read {text!r} as a tolerance; write a percentage such as '5%'"
+                f"cannot read {_q(text)} as a tolerance; write a percentage such as '5%'"
             )
         fraction = float(match.group("number")) / 100.0
     else:
         fraction = parse_value(text)
         if fraction >= 1:
             raise ValueParseError(
-                f"a bare tolerance {text!r} is read as a fraction ({fraction * 100:g} %); "
+                f"a bare tolerance {_q(text)} is read as a fraction ({fraction * 100:g} %); "
                 f"write a percentage such as '{text:g}%' if that is what was meant"
             )
     if fraction < 0 or not math.isfinite(fraction):
-        raise ValueParseError(f"a tolerance must be zero or positive, got {text!r}")
+        raise ValueParseError(f"a tolerance must be zero or positive, got {_q(text)}")
     return fraction
 
 

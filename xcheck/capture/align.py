@@ -174,7 +174,8 @@ def _robust_line(t: np.ndarray, v: np.ndarray) -> _Line:
     stride = max(1, t.size // ROBUST_SAMPLES)  # a first guess: a subset is plenty
     t, v = t[::stride], v[::stride]
     plain = _fit_line(t, v, robust=True)
-    scale = max(plain.sigma, np.finfo(float).tiny)
+    # A flat (clipped) stretch has sigma 0; scale**2 must stay a normal float.
+    scale = max(plain.sigma, _floor(None, v), math.sqrt(np.finfo(float).tiny))
     x = t - plain.t_mean
 
     def residual(p: np.ndarray) -> np.ndarray:

@@ -18,9 +18,18 @@ from pathlib import Path
 import numpy as np
 
 from xcheck.errors import TraceError
+from xcheck.input_file import InputFileProblem, open_regular
+from xcheck.quoting import excerpt, quoted
 
 #: How much of the (decompressed) file is read to work out its layout.
 HEAD_BYTES = 64 * 1024
+#: Largest trace or peak table read, on disk and (for gzip) decompressed: generous for a
+#: scope export (tens of millions of rows), small enough to refuse ``/dev/zero``-like input.
+TRACE_MAX_BYTES = 2 * 2**30
+#: Largest channel magnitude accepted, in SI units (volts, or amperes for a current
+#: probe), in a trace or a peak table: far beyond a bench capture, far inside the range
+#: where sums of squares of the samples stay finite (about 1e154).
+CHANNEL_LIMIT = 1e9
 
 BOM = b"\xef\xbb\xbf"
 NUM_DOT = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?"
@@ -176,7 +185,8 @@ def open_source(path: str | Path, size: int = HEAD_BYTES) -> Source:
     Raises
     ------
     TraceError
-        When the file is missing, a directory, unreadable, or damaged gzip.
+        When the file is missing, a directory, not a regular file (a FIFO, a device),
+        larger than :data:`TRACE_MAX_BYTES`, unreadable, or damaged gzip.
     """
     name = str(path)
     file = Path(path)
@@ -184,16 +194,19 @@ def open_source(path: str | Path, size: int = HEAD_BYTES) -> Source:
         raise TraceError(name, ["file not found; check the path and the working directory"])
     if file.is_dir():
         raise TraceError(name, ["this is a directory; give the path of a CSV or text file"])
+    is_gzip = False
     try:
-        with open(file, "rb") as handle:
+        with open_regular(file, TRACE_MAX_BYTES, "a CSV or text file") as handle:
             is_gzip = handle.read(2) == b"\x1f\x8b"
+            handle.seek(0)
+            with (gzip.open(handle, "rb") if is_gzip else handle) as text:
+                head = text.read(size + 1)
+    except InputFileProblem as exc:
+        raise TraceError(name, [f"the file {exc}"]) from None
     except PermissionError:
         raise TraceError(name, ["permission denied; make the file readable"]) from None
-    except OSError as exc:
-        raise TraceError(name, [f"cannot read the file ({exc.strerror or exc})"]) from None
-    try:
-        with (gzip.open if is_gzip else open)(file, "rb") as handle:
-            head = handle.read(size + 1)
+    except FileNotFoundError:
+        raise TraceError(name, ["file not found; check the path and the working directory"]) from None
     except (OSError, EOFError, zlib.error) as exc:
         what = "the gzip data is damaged or cut short" if is_gzip else "cannot read the file"
         raise TraceError(name, [f"{what} ({exc}); copy or export the capture again"]) from None
@@ -397,7 +410,7 @@ class Column:
 
     @property
     def label(self) -> str:
-        return f"'{self.text}' (index {self.index})"
+        return f"'{excerpt(self.text)}' (index {self.index})"
 
     def matches(self, wanted: str) -> bool:
         key = norm(wanted)
@@ -436,6 +449,11 @@ def columns(layout: Layout) -> list[Column]:
     return found
 
 
+def _wanted(wanted: object) -> str:
+    """The column the user asked for, quoted as a short excerpt."""
+    return quoted(wanted) if isinstance(wanted, str) else excerpt(repr(wanted))
+
+
 def pick_column(source: str, available: list[Column], wanted: object, role: str) -> Column:
     """The column ``wanted`` names (name, ``column k`` or 0-based index).
 
@@ -446,7 +464,7 @@ def pick_column(source: str, available: list[Column], wanted: object, role: str)
     """
     if isinstance(wanted, bool) or not isinstance(wanted, (str, int)):
         raise TraceError(
-            source, [f"the {role} must be a column name or a 0-based index, got {wanted!r}"]
+            source, [f"the {role} must be a column name or a 0-based index, got {_wanted(wanted)}"]
         )
     if isinstance(wanted, int):
         found = [available[wanted]] if 0 <= wanted < len(available) else []
@@ -456,10 +474,10 @@ def pick_column(source: str, available: list[Column], wanted: object, role: str)
         return found[0]
     listing = ", ".join(c.label for c in available)
     if found:
-        problem = f"the {role} {wanted!r} matches several columns ({listing}); choose by index"
+        problem = f"the {role} {_wanted(wanted)} matches several columns ({listing}); choose by index"
     else:
         problem = (
-            f"there is no column {wanted!r} for the {role}; the file has {listing}; "
+            f"there is no column {_wanted(wanted)} for the {role}; the file has {listing}; "
             "give one of these names (case and unit optional) or a 0-based index"
         )
     raise TraceError(source, [problem])

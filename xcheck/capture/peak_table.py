@@ -17,6 +17,7 @@ from pathlib import Path
 import numpy as np
 
 from xcheck.capture.csvlayout import (
+    CHANNEL_LIMIT,
     HEAD_BYTES,
     NUM_DOT_RE,
     UnitProblem,
@@ -159,6 +160,11 @@ def read_peaks(path: str | Path) -> PeakTable:
                 f"line {rows[k].number}: the uncertainty must be positive, got "
                 f"{uncertainty[k]:.6g} V"
             )
+    for k in np.flatnonzero(np.abs(values[:, 1:]).max(axis=1) > CHANNEL_LIMIT)[:MAX_EXAMPLES]:
+        problems.append(
+            f"line {rows[k].number}: {np.abs(values[k, 1:]).max():.6g} V is beyond "
+            f"±{CHANNEL_LIMIT:.0e} V, the most xcheck accepts; check the column's unit"
+        )
     if problems:
         raise TraceError(src.name, problems)
     finest = [float(np.min(written[:, i])) for i in (0, 1)]

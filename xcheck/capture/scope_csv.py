@@ -54,6 +54,7 @@ import pyarrow.csv as pacsv
 from xcheck.capture.clipping import detect_clipping, estimate_resolution
 from xcheck.capture.types import MAX_EXAMPLES, MIN_SAMPLES, Trace
 from xcheck.capture.csvlayout import (
+    CHANNEL_LIMIT,
     HEAD_BYTES,
     NUM_COMMA,
     NUM_DOT,
@@ -68,7 +69,9 @@ from xcheck.capture.csvlayout import (
     sniff_layout,
 )
 from xcheck.capture.csvmeta import Meta, Stated, read_metadata, record_problems, time_problems
+from xcheck.capture import csvlayout
 from xcheck.errors import TraceError
+from xcheck.input_file import BoundedStream, InputFileProblem
 
 __all__ = ["read_trace"]
 
@@ -129,6 +132,7 @@ def read_trace(
         problems += _nonfinite_problems(src, layout, raw_time, plan.time)
     if problems:
         raise TraceError(src.name, problems)
+    _check_magnitude(src, layout, plan, volts, max(abs(top), abs(bottom)))
     if volts.size < MIN_SAMPLES:
         raise TraceError(
             src.name,
@@ -164,6 +168,28 @@ def read_trace(
         resolution=resolution,
         channels=tuple(c.text for c in plan.channels),
     )
+
+
+def _check_magnitude(src: Source, layout: Layout, plan: _Plan, raw: np.ndarray,
+                     raw_peak: float) -> None:
+    """Refuse a channel beyond :data:`CHANNEL_LIMIT` once scaled to SI units.
+
+    Values near 1e300 are finite but overflow the fit's sums of squares; no bench
+    capture comes near the limit, so a value beyond it is a wrong unit, probe factor or
+    column, or a damaged file.
+    """
+    probe = plan.meta.probe.value if plan.meta.probe is not None else 1.0
+    factor = abs(plan.channel_scale * probe)
+    if raw_peak * factor <= CHANNEL_LIMIT:
+        return
+    row = int(np.flatnonzero(np.abs(raw) * factor > CHANNEL_LIMIT)[0])
+    line = int(_row_lines(src, layout, np.array([row]))[0])
+    raise TraceError(src.name, [
+        f"line {line}: column {plan.channel.label} holds {raw[row]:.6g}, which is "
+        f"{raw[row] * factor:.3g} in SI units (V or A) after the unit and probe factor, "
+        f"beyond ±{CHANNEL_LIMIT:.0e}, the most xcheck accepts; check the column, its unit "
+        "and the probe factor, or export the capture again"
+    ])
 
 
 @dataclass
@@ -290,9 +316,17 @@ def _time_axis(
 
 # --------------------------------------------------------------------------- body
 
-def _stream(src: Source, offset: int) -> pa.NativeFile:
+def _stream(src: Source, offset: int) -> pa.NativeFile | BoundedStream:
+    """The file from byte ``offset`` of its (decompressed) content.
+
+    A gzip file's decompressed content is capped at :data:`csvlayout.TRACE_MAX_BYTES`
+    (:class:`~xcheck.input_file.BoundedStream`); a plain file's size was checked when
+    :func:`~xcheck.capture.csvlayout.open_source` opened it.
+    """
     stream = pa.input_stream(str(src.path), compression="gzip" if src.is_gzip else None)
     stream.read(offset)
+    if src.is_gzip:
+        return BoundedStream(stream, csvlayout.TRACE_MAX_BYTES - offset, "decompressed text")
     return stream
 
 
@@ -319,6 +353,8 @@ def _read_body(
                 decimal_point="," if layout.decimal_comma else ".",
             ),
         )
+    except InputFileProblem as exc:
+        raise TraceError(src.name, [f"the file {exc}"]) from None
     except (pa.ArrowInvalid, OSError, EOFError, zlib.error) as exc:
         problems = _diagnose_body(src, layout, columns, wanted)
         raise TraceError(
@@ -352,6 +388,8 @@ def _diagnose_body(
     """Line-numbered reasons why the body could not be read (vectorised, error path only)."""
     try:
         lines = _body_lines(src, layout)
+    except InputFileProblem as exc:
+        return [f"the file {exc}"]
     except (pa.ArrowInvalid, OSError, EOFError, zlib.error) as exc:
         return [f"the data rows cannot be read ({exc}); export the capture again"]
     first = layout.body_line

@@ -12,6 +12,7 @@ there); the markdown is rendered from the same data.
 from __future__ import annotations
 
 import math
+import re
 from pathlib import Path
 from typing import Any
 
@@ -29,6 +30,47 @@ FIGURES = ("overlay.png", "residuals.png", "envelope.png")
 NUISANCE_UNITS = {"offset": "V", "shift": "s", "time_origin": "s"}
 
 
+#: Characters that start HTML or markdown syntax: ``&<>`` become entities; the markdown
+#: punctuation (link and image brackets, code spans, table cells) gets a backslash.
+_HTML = {"&": "&amp;", "<": "&lt;", ">": "&gt;"}
+_MARKDOWN_PUNCTUATION = "\\`[]()!|"
+#: Line breaks and other control characters (C0, DEL, C1, Unicode line/paragraph separators).
+_BREAKS = re.compile("[\x00-\x1f\x7f-\x9f\u2028\u2029]+")
+#: Starts of bare addresses that GitHub-flavoured markdown turns into links by itself.
+_BARE_ADDRESS = re.compile(r"(?i)(?<=\bwww)\.|:(?=//)")
+
+
+def escape_markdown(value: object) -> str:
+    """``value`` as inert markdown text: it renders as itself, on one line.
+
+    Every user string that reaches ``report.md`` (fixture title, part and candidate names,
+    descriptions, file names, messages quoting them) goes through this one function, so that
+    no raw HTML (``<img onerror=...>``, ``<script>``), markdown link or image, code span,
+    table-cell break or new line written in a fixture can take effect on a review site.
+
+    Parameters
+    ----------
+    value
+        Any object; its ``str()`` is escaped.
+
+    Returns
+    -------
+    str
+        The text with ``&<>`` as HTML entities, each of ``\\ ` [ ] ( ) ! |`` preceded by a
+        backslash (CommonMark backslash escapes), every run of line breaks or control
+        characters folded to one space, and the ``:`` of ``://`` and the ``.`` of ``www.``
+        escaped so that a bare address is not turned into a link (GitHub-flavoured autolinks).
+    """
+    text = _BREAKS.sub(" ", str(value))
+    text = "".join(_HTML.get(c) or ("\\" + c if c in _MARKDOWN_PUNCTUATION else c) for c in text)
+    return _BARE_ADDRESS.sub(lambda match: "\\" + match.group(0), text)
+
+
+def _figure_text(value: object) -> str:
+    """``value`` for a matplotlib title or legend: one line, ``$`` not read as mathtext."""
+    return _BREAKS.sub(" ", str(value)).replace("$", r"\$")
+
+
 def _pct(value: float | None) -> str:
     return "n/a" if value is None or not math.isfinite(value) else f"{100 * value:.3g} %"
 
@@ -41,26 +83,28 @@ def markdown(comparison: Comparison, data: dict[str, Any]) -> str:
     """The text of ``report.md``."""
     fixture = comparison.fixture
     safety = assess(fixture)
-    lines = [f"# xcheck report: {fixture.title}", ""]
+    md = escape_markdown
+    lines = [f"# xcheck report: {md(fixture.title)}", ""]
     if safety.hazardous:
-        lines += [f"> **Caution** ({'; '.join(safety.reasons)}). {CAUTION}", ""]
-    lines += ["## Verdict", "", comparison.verdict, "", "![Measured and every candidate](overlay.png)", ""]
+        lines += [f"> **Caution** ({md('; '.join(safety.reasons))}). {CAUTION}", ""]
+    lines += ["## Verdict", "", md(comparison.verdict), "", "![Measured and every candidate](overlay.png)", ""]
     lines += ["## Candidates, ranked by BIC", "",
               "| rank | candidate | ΔBIC | evidence vs best | NRMSE (theory) | NRMSE (ngspice) | "
               "series R | f_d | α | engines differ by | status |",
               "|---:|---|---:|---|---:|---:|---:|---:|---:|---:|---|"]
     for outcome, item in zip(comparison.outcomes, data["candidates"]):
         ng = item["engines"]["ngspice"]
-        status = "failed: " + str(item["failure_reason"]) if item["failed"] else (
+        status = "failed: " + md(item["failure_reason"]) if item["failed"] else (
             "engines disagree" if outcome.engines_disagree else "ok")
         lines.append(
-            f"| {item['rank'] or '–'} | {item['name']} | {_num(item['delta_bic'], 3)} | "
+            f"| {item['rank'] or '–'} | {md(item['name'])} | {_num(item['delta_bic'], 3)} | "
             f"{item['evidence']} | {_pct(item['nrmse'])} | {_pct(ng['nrmse'] if ng else None)} | "
             f"{_eng(item['series_resistance_ohm'], 'ohm')} | {_eng(item['damped_frequency_hz'], 'Hz')} | "
             f"{_num(item['neper_frequency_per_s'])} /s | {_pct(item['engine_disagreement'])} | {status} |"
         )
-    lines += ["", "Evidence words follow Kass & Raftery (1995): ΔBIC < 2 not distinguishable, "
-              "2–6 positive, 6–10 strong, > 10 decisive. AIC and BIC use the effective sample count "
+    lines += ["", "Evidence words follow Kass & Raftery (1995), ΔBIC read as 2 ln B: < 2 not "
+              "distinguishable (their words: not worth more than a bare mention), 2–6 positive, "
+              "6–10 strong, > 10 very strong. AIC and BIC use the effective sample count "
               f"n_eff = {_num(comparison.observation.n_effective, 4)}.", ""]
     lines += ["## Fitted values", "", "| candidate | value | fitted | ± standard error | start | note |",
               "|---|---|---:|---:|---:|---|"]
@@ -71,19 +115,19 @@ def markdown(comparison: Comparison, data: dict[str, Any]) -> str:
                 if value.label in group.members:
                     held = [m for m in group.members if m != value.label]
                     shown = ", ".join(
-                        f"{m} held at {format_eng(outcome.fit.parameters.get(label_key(m), 0.0) or 0.0, group.unit or value.unit)}"
+                        f"{md(m)} held at {format_eng(outcome.fit.parameters.get(label_key(m), 0.0) or 0.0, group.unit or value.unit)}"
                         for m in held)
-                    note = (f"only the {group.combination} with {', '.join(held)} is determined "
+                    note = (f"only the {group.combination} with {md(', '.join(held))} is determined "
                             f"({shown}); the ± applies to the {group.combination}")
             lines.append(
-                f"| {outcome.name} | {value.label} | {format_eng(value.value, value.unit, 4)} | "
+                f"| {md(outcome.name)} | {md(value.label)} | {format_eng(value.value, value.unit, 4)} | "
                 f"{format_eng(value.stderr, value.unit, 2)} | {format_eng(value.start, value.unit)} | {note} |"
             )
         for name, (value, stderr) in outcome.fit.nuisance.items():
             unit = NUISANCE_UNITS.get(name, "")
             shown = (f"{format_eng(value, unit, 4)} | {format_eng(stderr, unit, 2)}" if unit
                      else f"{_num(value)} | {_num(stderr, 2)}")
-            lines.append(f"| {outcome.name} | {name} (nuisance) | {shown} | | |")
+            lines.append(f"| {md(outcome.name)} | {name} (nuisance) | {shown} | | |")
     lines += ["", "Nuisance values, fitted in every candidate so that none loses to the instrument: "
               "gain (probe attenuation and true initial voltage, 1 = as stated), offset (scope DC "
               "offset, V), shift (error of the detected event time, s); for a peak table, amplitude "
@@ -95,8 +139,8 @@ def markdown(comparison: Comparison, data: dict[str, Any]) -> str:
             any_group = True
             value = (format_eng(group.value, group.unit) if group.combination == "sum"
                      else _num(group.value))
-            lines.append(f"- **{outcome.name}**: {group.combination} of {', '.join(group.members)} "
-                         f"= {value}. {group.reason}.")
+            lines.append(f"- **{md(outcome.name)}**: {group.combination} of {md(', '.join(group.members))} "
+                         f"= {value}. {md(group.reason)}.")
     if not any_group:
         lines.append("- Every fitted value is determined separately by this measurement.")
     lines += ["", "## Measured ring-down", ""]
@@ -105,10 +149,10 @@ def markdown(comparison: Comparison, data: dict[str, Any]) -> str:
               "![Envelope of the extrema](envelope.png)", ""]
     lines += ["## Inputs", "", "| role | file | sha256 |", "|---|---|---|"]
     for item in data["inputs"]:
-        lines.append(f"| {item['role']} | `{item['path']}` | `{item['sha256']}` |")
+        lines.append(f"| {md(item['role'])} | {md(item['path'])} | `{md(item['sha256'])}` |")
     lines += ["", "## Versions and seeds", ""]
-    lines += [f"- {name}: {value}" for name, value in data["versions"].items()]
-    lines += [f"- seed {name}: {value}" for name, value in data["seeds"].items()] or []
+    lines += [f"- {md(name)}: {md(value)}" for name, value in data["versions"].items()]
+    lines += [f"- seed {md(name)}: {md(value)}" for name, value in data["seeds"].items()]
     if not data["seeds"]:
         lines.append("- no random numbers were drawn for this report")
     if not safety.hazardous:
@@ -143,7 +187,7 @@ def _measured_lines(measured: dict[str, Any]) -> list[str]:
     lines += ["", f"- envelope is one exponential: {'yes' if measured.get('envelope_exponential') else 'no'}",
               f"- flagged extrema (0-based, time order): {measured.get('flagged_extrema') or 'none'}"]
     for finding in measured.get("notes", []) or measured.get("findings", []):
-        lines.append(f"- {finding}")
+        lines.append(f"- {escape_markdown(finding)}")
     return lines
 
 
@@ -183,10 +227,10 @@ def write_report(comparison: Comparison, folder: str | Path) -> Path:
 def _write_figures(comparison: Comparison, folder: Path) -> None:
     obs = comparison.observation
     usable = [o for o in comparison.outcomes if not o.failed and o.theory_curve is not None]
-    curves = [(f"{o.name} (rank {o.ranked.rank})", o.theory_curve) for o in usable]
+    curves = [(_figure_text(f"{o.name} (rank {o.ranked.rank})"), o.theory_curve) for o in usable]
     overlay_figure(folder / "overlay.png", obs.time, obs.voltage, curves,
-                   comparison.fixture.title, peaks=obs.discrete)
-    residuals = [(o.name, obs.voltage - o.theory_curve) for o in usable]
+                   _figure_text(comparison.fixture.title), peaks=obs.discrete)
+    residuals = [(_figure_text(o.name), obs.voltage - o.theory_curve) for o in usable]
     sigma = float(np.median(np.broadcast_to(np.asarray(obs.sigma, float), obs.voltage.shape)))
     residual_figure(folder / "residuals.png", obs.time, residuals, sigma)
     env = comparison.measured.envelope()

@@ -1,0 +1,100 @@
+"""Run every benchmark and write BENCHMARKS.md.
+
+Usage: ``python -m benchmarks [--quick] [--large] [--out FILE]``
+
+- ``--quick``: tiny sizes (a smoke run in seconds; the numbers mean nothing).
+- ``--large``: add the 10-million-row reader rows.
+- ``--out``: where to write the table (default ``BENCHMARKS.md`` at the repository root).
+"""
+
+from __future__ import annotations
+
+import argparse
+import datetime as dt
+import sys
+import tempfile
+from dataclasses import dataclass
+from pathlib import Path
+
+from benchmarks import bench_crb, bench_ngspice, bench_reader, bench_startup
+from benchmarks.table import NOT_MEASURED, Row, machine, render
+
+REPO = Path(__file__).resolve().parent.parent
+
+
+@dataclass(frozen=True)
+class Sizes:
+    """How big each benchmark runs."""
+
+    reader_rows: int
+    reader_repeat: int
+    large_rows: int
+    large_repeat: int
+    crb_trials: int
+    bisection_steps: int
+    startup_runs: int
+
+
+FULL = Sizes(1_000_000, 7, 10_000_000, 3, 300, 10, 7)
+QUICK = Sizes(20_000, 1, 100_000, 1, 2, 0, 1)
+
+
+def not_measured() -> list[Row]:
+    """Rows (d) and (e), not measured yet."""
+    return [
+        Row("d", "state-space engine speed", "not set yet", "ngspice on the same circuits", "",
+            NOT_MEASURED, "not measured yet: needs the vectorised state-space engine"),
+        Row("e", "compare end to end (1e4/1e5/1e6 samples: wall time, growth exponent)",
+            "not set yet", "reading the trace + the ngspice runs alone", "",
+            NOT_MEASURED, "not measured yet: needs the compare end-to-end harness"),
+    ]
+
+
+def all_rows(sizes: Sizes, large: bool, workdir: Path) -> list[Row]:
+    """Every row of the table, in order (a) to (f).
+
+    Parameters
+    ----------
+    sizes
+        :data:`FULL` or :data:`QUICK`.
+    large
+        Also measure the reader on ``sizes.large_rows`` rows.
+    workdir
+        Scratch directory for the generated captures.
+
+    Returns
+    -------
+    list of Row
+    """
+    rows: list[Row] = []
+    rows += bench_reader.measure(sizes.reader_rows, sizes.reader_repeat, False, "a-plain", workdir)
+    rows += bench_reader.measure(sizes.reader_rows, sizes.reader_repeat, True, "a-gzip", workdir)
+    rows.append(bench_reader.pandas_row(sizes.reader_rows, sizes.reader_repeat, "a-pandas", workdir))
+    if large:
+        rows += bench_reader.measure(sizes.large_rows, sizes.large_repeat, False, "a-large", workdir)
+    rows += bench_crb.rows(sizes.crb_trials)
+    rows += bench_ngspice.rows(sizes.bisection_steps)
+    rows += not_measured()
+    rows += bench_startup.rows(sizes.startup_runs)
+    return rows
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Command-line entry: run, write the file, print where it went."""
+    parser = argparse.ArgumentParser(prog="python -m benchmarks", description=__doc__.splitlines()[0])
+    parser.add_argument("--quick", action="store_true", help="tiny sizes (smoke run)")
+    parser.add_argument("--large", action="store_true", help="add the 10-million-row reader rows")
+    parser.add_argument("--out", type=Path, default=REPO / "BENCHMARKS.md", help="output file")
+    args = parser.parse_args(argv)
+    when = dt.datetime.now(dt.timezone.utc)
+    with tempfile.TemporaryDirectory() as tmp:
+        rows = all_rows(QUICK if args.quick else FULL, args.large, Path(tmp))
+    command = " ".join(["python -m benchmarks", *(argv if argv is not None else sys.argv[1:])])
+    text = render(rows, machine(), command, when, quick=args.quick)
+    args.out.write_text(text, encoding="utf-8")
+    print(f"wrote {args.out}")
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
