@@ -70,7 +70,7 @@ def rows(runs: int = 7) -> list[Row]:
     return [
         Row(
             "f-version", "start-up: xcheck --version", f"<= +{VERSION_GOAL} s",
-            "python -c pass (same interpreter)", f"+{extra_version:.3f} s",
+            "python -c pass (same interpreter)", f"{extra_version:+.3f} s",
             judged(extra_version <= VERSION_GOAL),
             f"medians of {runs}: bare {bare:.3f} s, --version {median['version']:.3f} s"
             + ("" if extra_version <= VERSION_GOAL else
@@ -79,7 +79,7 @@ def rows(runs: int = 7) -> list[Row]:
         ),
         Row(
             "f-deck", f"start-up: xcheck deck {fixture}", "none (reported)",
-            "python -c pass (same interpreter)", f"+{extra_deck:.3f} s", INFO,
+            "python -c pass (same interpreter)", f"{extra_deck:+.3f} s", INFO,
             f"medians of {runs}: deck {median['deck']:.3f} s ({median['deck'] / bare:.1f}x bare)",
         ),
     ]
