@@ -12,8 +12,8 @@ from __future__ import annotations
 
 import gzip
 import os
-import subprocess
-import sys
+import signal
+from dataclasses import dataclass
 
 import pytest
 
@@ -22,16 +22,39 @@ from xcheck.capture import csvlayout
 from xcheck.cli import main
 from xcheck.fixture.reader import FIXTURE_MAX_BYTES
 
-pytestmark = pytest.mark.skipif(not hasattr(os, "mkfifo"), reason="needs POSIX FIFOs")
+pytestmark = pytest.mark.skipif(not hasattr(os, "mkfifo") or not hasattr(signal, "SIGALRM"),
+                                reason="needs POSIX FIFOs and alarms")
 
-#: A blocked read would wait forever; a refusal takes well under a second plus start-up.
+#: A blocked read would wait forever; a refusal takes well under a second.
 TIMEOUT_S = 60
 
 
-def run_cli(*args: str, cwd) -> subprocess.CompletedProcess[str]:
-    """xcheck in a child process, so a regression that blocks fails by timeout, not hangs."""
-    return subprocess.run([sys.executable, "-m", "xcheck", *args], cwd=cwd, capture_output=True,
-                          text=True, timeout=TIMEOUT_S, check=False)
+class Blocked(BaseException):
+    """Raised by the alarm: a BaseException, so no ``except OSError`` in xcheck hides it."""
+
+
+@dataclass(frozen=True)
+class Result:
+    returncode: int
+    stderr: str
+
+
+def run_cli(printed, *args: str) -> Result:
+    """xcheck's ``main`` under an alarm, so a regression that blocks (a FIFO opened for
+    reading waits for a writer) fails after TIMEOUT_S instead of hanging the suite: the
+    signal interrupts the blocking call and its handler raises (PEP 475, from memory)."""
+
+    def on_alarm(signum, frame):
+        raise Blocked(f"xcheck {args[0]} was still blocked after {TIMEOUT_S} s")
+
+    previous = signal.signal(signal.SIGALRM, on_alarm)
+    signal.alarm(TIMEOUT_S)
+    try:
+        code = main(list(args))
+    finally:
+        signal.alarm(0)
+        signal.signal(signal.SIGALRM, previous)
+    return Result(code, printed().raw_err)
 
 
 def one_paragraph(err: str) -> str:
@@ -55,11 +78,11 @@ KINDS = [("fifo", "FIFO (named pipe)"), ("folder", "folder"), ("zero", "characte
 
 
 @pytest.mark.parametrize("kind, words", KINDS)
-def test_fixture_that_is_not_a_regular_file_is_refused_fast(tmp_path, kind, words):
+def test_fixture_that_is_not_a_regular_file_is_refused_fast(tmp_path, kind, words, printed):
     if kind == "zero" and not os.path.exists("/dev/zero"):
         pytest.skip("no /dev/zero")
     path = special_path(tmp_path, kind)
-    result = run_cli("deck", path, "--out", str(tmp_path / "x.cir"), cwd=tmp_path)
+    result = run_cli(printed, "deck", path, "--out", str(tmp_path / "x.cir"))
     assert result.returncode == 2
     err = one_paragraph(result.stderr)
     assert path in err and words in err and "not a regular file" in err, err
@@ -89,11 +112,11 @@ def test_fixture_at_the_limit_is_still_read(tmp_path):
 
 
 @pytest.mark.parametrize("kind, words", KINDS)
-def test_trace_that_is_not_a_regular_file_is_refused_fast(tmp_path, kind, words):
+def test_trace_that_is_not_a_regular_file_is_refused_fast(tmp_path, kind, words, printed):
     if kind == "zero" and not os.path.exists("/dev/zero"):
         pytest.skip("no /dev/zero")
     path = special_path(tmp_path, kind)
-    result = run_cli("ringdown", path, "--out", str(tmp_path / "r.png"), cwd=tmp_path)
+    result = run_cli(printed, "ringdown", path, "--out", str(tmp_path / "r.png"))
     assert result.returncode == 2
     err = one_paragraph(result.stderr)
     assert path in err, err
@@ -102,12 +125,12 @@ def test_trace_that_is_not_a_regular_file_is_refused_fast(tmp_path, kind, words)
     assert not (tmp_path / "r.png").exists()
 
 
-def test_peak_table_fifo_is_refused_fast(tmp_path):
+def test_peak_table_fifo_is_refused_fast(tmp_path, printed):
     fixture = tmp_path / "jig.toml"
     fixture.write_text(LOSSY_JIG_TOML, encoding="utf-8")
     pipe = special_path(tmp_path, "fifo")
-    result = run_cli("compare", str(fixture), "--peaks", pipe, "--out", str(tmp_path / "o"),
-                     "--no-ngspice", "--quiet", cwd=tmp_path)
+    result = run_cli(printed, "compare", str(fixture), "--peaks", pipe, "--out",
+                     str(tmp_path / "o"), "--no-ngspice", "--quiet")
     assert result.returncode == 2
     err = one_paragraph(result.stderr)
     assert pipe in err and "FIFO" in err, err
