@@ -170,7 +170,7 @@ def main() -> None:
     parser.add_argument("--iterations", type=int, default=10)
     args = parser.parse_args()
     for row in rows(args.iterations):
-        print(f"{row.figure}: {row.value} ({row.status}; goal {row.goal}) - {row.note}")
+        print(row.line())
 
 
 if __name__ == "__main__":

@@ -252,7 +252,7 @@ def main() -> None:
         return
     with tempfile.TemporaryDirectory() as tmp:
         for row in measure(args.rows, args.repeat, args.gzip, "reader", args.keep or Path(tmp)):
-            print(f"{row.figure}: {row.value} ({row.status}; goal {row.goal}) - {row.note}")
+            print(row.line())
 
 
 if __name__ == "__main__":

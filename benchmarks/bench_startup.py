@@ -90,7 +90,7 @@ def main() -> None:
     parser.add_argument("--runs", type=int, default=7)
     args = parser.parse_args()
     for row in rows(args.runs):
-        print(f"{row.figure}: {row.value} ({row.status}; goal {row.goal}) - {row.note}")
+        print(row.line())
 
 
 if __name__ == "__main__":

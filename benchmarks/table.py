@@ -43,6 +43,10 @@ class Row:
     status: str
     note: str = ""
 
+    def line(self) -> str:
+        """The row as one line of text, for a benchmark script run on its own."""
+        return f"{self.figure}: {self.value} ({self.status}; goal {self.goal}) - {self.note}"
+
 
 def judged(ok: bool) -> str:
     """``met`` or ``missed``."""
