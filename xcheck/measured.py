@@ -17,14 +17,13 @@ from typing import ClassVar
 
 import numpy as np
 
-from xcheck.capture.align import Alignment, align_trace
+from xcheck.capture.align import Alignment
 from xcheck.fitting.fit import FitResult
 from xcheck.fitting.observation import Observation, PeakObservation, TraceObservation
 from xcheck.fixture.model import Fixture
-from xcheck.ringdown import RingdownEstimate, estimate_from_peaks, estimate_ringdown
+from xcheck.ringdown import RingdownEstimate
+from xcheck.ringdown.from_file import ringdown_from_file
 from xcheck.ringdown.peaks import decimal_resolution, rounded_time_sigma
-from xcheck.capture.peak_table import read_peaks
-from xcheck.capture.scope_csv import read_trace
 from xcheck.values import format_eng
 
 
@@ -240,22 +239,18 @@ def measure(
     -------
     Measured
     """
-    if peaks is not None:
-        table = read_peaks(peaks)
-        estimate = estimate_from_peaks(table.time, table.voltage, table.uncertainty,
-                                       time_resolution=table.time_resolution,
-                                       voltage_resolution=table.voltage_resolution)
-        return MeasuredPeaks(str(peaks), table.time - table.time[0], table.voltage,
-                             np.zeros(table.time.size, bool), table.uncertainty, estimate, None,
+    found = ringdown_from_file(
+        peaks if peaks is not None else trace, peaks=peaks is not None, column=column,
+        event_time=event_time, expect=fixture.response, expected_sign=_expected_sign(fixture),
+    )
+    estimate = found.estimate
+    if found.is_peak_table:
+        return MeasuredPeaks(str(peaks), found.time - found.time[0], found.voltage,
+                             np.zeros(found.time.size, bool), found.uncertainty, estimate, None,
                              _envelope_findings(estimate), tuple(estimate.envelope.findings),
-                             table.time_resolution)
-    raw = read_trace(trace, column=column)
-    aligned, alignment = align_trace(raw, event_time=event_time, expect=fixture.response,
-                                     expected_sign=_expected_sign(fixture))
-    excluded = np.asarray(aligned.clipped, bool)
-    noise = alignment.noise_rms if alignment.noise_rms and math.isfinite(alignment.noise_rms) else None
-    estimate = estimate_ringdown(aligned.time, aligned.voltage, noise_sigma=noise,
-                                 exclude=excluded, resolution=raw.resolution)
+                             found.time_resolution)
+    excluded = np.asarray(found.excluded, bool)
+    alignment = found.alignment
     findings = []
     if excluded.any():
         findings.append(
@@ -274,7 +269,7 @@ def measure(
         )
     notes.extend(estimate.envelope.findings)
     findings.extend(_envelope_findings(estimate))
-    return MeasuredTrace(str(trace), aligned.time, aligned.voltage, excluded, None, estimate,
+    return MeasuredTrace(str(trace), found.time, found.voltage, excluded, None, estimate,
                          alignment, tuple(findings), tuple(notes))
 
 

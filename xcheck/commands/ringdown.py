@@ -31,6 +31,7 @@ from xcheck.atomic import (
 from xcheck.errors import ValueParseError, XcheckError
 from xcheck.report.figures import ringdown_figure
 from xcheck.ringdown import DerivedCircuit, Estimate, RingdownEstimate, derive_circuit
+from xcheck.report.ringdown_json import ringdown_json
 from xcheck.ringdown.from_file import FileRingdown, ringdown_from_file
 from xcheck.values import format_eng, parse_value
 
@@ -175,7 +176,7 @@ def run(args: argparse.Namespace) -> int:
     )
     written = [png]
     if args.json is not None:
-        text = json.dumps(result.to_json(derived), indent=2, allow_nan=False)
+        text = json.dumps(ringdown_json(result, derived), indent=2, allow_nan=False)
         write_text_atomically(args.json, text + "\n", option="--json")
         written.append(args.json)
     print(summary_text(estimate, derived, _context_lines(result), written))

@@ -39,6 +39,7 @@ import numpy as np
 from xcheck import __version__
 from xcheck.measured import Measured, display_path
 from xcheck.outcome import CandidateOutcome, Comparison, EngineMetrics
+from xcheck.report.ringdown_json import alignment_json
 from xcheck.safety import assess
 
 SCHEMA = "xcheck-summary"
@@ -158,15 +159,7 @@ def _measured_json(measured: Measured) -> dict[str, Any]:
         "notes": list(measured.notes),
     }
     if measured.alignment is not None:
-        a = measured.alignment
-        data["alignment"] = {
-            "event_time_s": _finite(a.event_time),
-            "baseline_volts": _finite(a.baseline),
-            "noise_rms_volts": _finite(a.noise_rms),
-            "droop_volts_per_s": _finite(a.droop_per_s),
-            "inverted": bool(a.inverted),
-            "manual": bool(a.manual),
-        }
+        data["alignment"] = {k: _finite(v) for k, v in alignment_json(measured.alignment).items()}
     return data
 
 

@@ -15,14 +15,12 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
 
 import numpy as np
 
 from xcheck.capture.align import Alignment, align_trace
 from xcheck.capture.peak_table import read_peaks
 from xcheck.capture.scope_csv import read_trace
-from xcheck.ringdown.derived import DerivedCircuit
 from xcheck.ringdown.estimator import estimate_ringdown
 from xcheck.ringdown.peaks import estimate_from_peaks
 from xcheck.ringdown.result import RingdownEstimate
@@ -49,6 +47,10 @@ class FileRingdown:
         The file's name as the reader reports it.
     column
         The channel used (traces), or None.
+    uncertainty
+        A peak table's stated uncertainty of each reading (V), or None.
+    time_resolution
+        A peak table's reading step of the time column (s), or None.
     """
 
     source: str
@@ -59,48 +61,13 @@ class FileRingdown:
     alignment: Alignment | None
     source_name: str
     column: str | None = None
+    uncertainty: np.ndarray | None = None
+    time_resolution: float | None = None
 
     @property
     def is_peak_table(self) -> bool:
         """True when the file was a table of extrema."""
         return self.excluded is None
-
-    def to_json(self, derived: DerivedCircuit | None = None) -> dict[str, Any]:
-        """The estimate in SI units, JSON-safe (non-finite numbers become null).
-
-        Parameters
-        ----------
-        derived
-            Series-RLC values implied by the estimate, added as ``"derived"``.
-        """
-        data = self.estimate.to_json()
-        data["source"] = self.source
-        if self.alignment is not None:
-            a = self.alignment
-            data["alignment"] = {
-                "event_time_s": a.event_time,
-                "baseline_volts": a.baseline,
-                "noise_rms_volts": a.noise_rms,
-                "droop_volts_per_s": a.droop_per_s,
-                "inverted": bool(a.inverted),
-                "manual": bool(a.manual),
-                "pre_event_samples": int(a.pre_event_samples),
-                "notes": list(a.notes),
-            }
-        if derived is not None:
-            data["derived"] = derived.to_json()
-        return _plain(data)
-
-
-def _plain(data: Any) -> Any:
-    """JSON-safe copy: non-finite floats become null (JSON has no NaN or infinity)."""
-    if isinstance(data, dict):
-        return {k: _plain(v) for k, v in data.items()}
-    if isinstance(data, (list, tuple)):
-        return [_plain(v) for v in data]
-    if isinstance(data, float) and not math.isfinite(data):
-        return None
-    return data
 
 
 def ringdown_from_file(
@@ -111,6 +78,7 @@ def ringdown_from_file(
     time_column: str | int | None = None,
     event_time: float | None = None,
     expect: str = "natural",
+    expected_sign: int | None = None,
     modes: int = 1,
 ) -> FileRingdown:
     """Read ``path``, align it and estimate its ring-down.
@@ -128,6 +96,9 @@ def ringdown_from_file(
         Event time in the file's time base (s); None finds it from the trace.
     expect
         ``"natural"`` (a charged capacitor released) or ``"step"``.
+    expected_sign
+        The event's expected polarity (+1 or -1) when the fixture states it; an event of
+        the other sign is reported as an inverted probe. None: either.
     modes
         Damped sinusoids to fit.
 
@@ -142,9 +113,12 @@ def ringdown_from_file(
             time_resolution=table.time_resolution, voltage_resolution=table.voltage_resolution,
         )
         return FileRingdown(str(path), estimate, np.asarray(table.time),
-                            np.asarray(table.voltage), None, None, table.source)
+                            np.asarray(table.voltage), None, None, table.source,
+                            uncertainty=table.uncertainty,
+                            time_resolution=table.time_resolution)
     trace = read_trace(path, column=column, time_column=time_column)
-    aligned, alignment = align_trace(trace, event_time=event_time, expect=expect)
+    aligned, alignment = align_trace(trace, event_time=event_time, expect=expect,
+                                     expected_sign=expected_sign)
     noise = (
         alignment.noise_rms
         if math.isfinite(alignment.noise_rms) and alignment.noise_rms > 0
