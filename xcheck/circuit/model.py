@@ -27,7 +27,7 @@ from networkx.utils import UnionFind
 from xcheck.errors import FixtureError
 
 
-ElementKind = Literal["R", "L", "C", "V"]
+ElementKind = Literal["R", "L", "C", "V", "I"]
 
 
 @dataclass(frozen=True)
@@ -40,10 +40,12 @@ class Element:
         Unique identifier made only of letters, digits and underscores, starting with
         the SPICE letter of its kind (``"C_C1"``, ``"R_C1_esr"``).
     kind
-        ``"R"`` (ohms), ``"L"`` (henries), ``"C"`` (farads) or ``"V"`` (volts).
+        ``"R"`` (ohms), ``"L"`` (henries), ``"C"`` (farads), ``"V"`` (volts) or ``"I"``
+        (amperes, an independent current source).
     nodes
         (first node, second node); for C the initial voltage is first minus second,
-        for L and V the current flows from the first node through the element.
+        for L, V and I the current flows from the first node through the element to
+        the second (SPICE's convention: ``I1 a b 1`` takes 1 A out of node ``a``).
     value
         SI value.
     initial
@@ -67,6 +69,26 @@ class Element:
     #: False for elements across a part rather than in series with the loop
     #: (capacitor leakage, inductor self-capacitance, probe loading).
     in_loop: bool = True
+    #: Sources only (V, I): when the source holds ``value``. ``"dc"``: always, also
+    #: before t = 0 (the circuit starts at its DC operating point when
+    #: :attr:`Circuit.starts_settled`); ``"step"``: from ``t_on`` on; ``"pulse"``: for
+    #: ``t_on <= t < t_off``. Outside those times the source is 0 (a V source a short,
+    #: an I source open).
+    timing: Literal["dc", "step", "pulse"] = "dc"
+    #: Switch-on time of a step or pulse (s, >= 0).
+    t_on: float = 0.0
+    #: Switch-off time of a pulse (s, > ``t_on``); None otherwise.
+    t_off: float | None = None
+
+    def source_value(self, time: float) -> float:
+        """The source's value at ``time`` (s, t >= 0); 0 where it is switched off."""
+        if self.timing == "dc":
+            return self.value
+        if time < self.t_on:
+            return 0.0
+        if self.t_off is not None and time >= self.t_off:
+            return 0.0
+        return self.value
 
 
 @dataclass(frozen=True)
@@ -91,6 +113,15 @@ class Circuit:
         The reference node.
     source
         Where the circuit came from (the fixture file), for messages and deck headers.
+    probe_current
+        Name of a 0 V source whose current (first node through it to the second) is
+        the probed signal (a current probe), or None for a voltage probe between the
+        ``probe`` nodes. With a current probe, engines put amperes where they would
+        put the probe voltage.
+    starts_settled
+        True when every capacitor and inductor starts at the DC operating point of
+        the sources with ``timing == "dc"`` (their ``initial`` values are then
+        ignored); False when each starts at its ``initial`` (0 when None).
     """
 
     title: str
@@ -100,6 +131,13 @@ class Circuit:
     current_sense: str | None = None
     ground: str = field(default="0")
     source: str = ""
+    probe_current: str | None = None
+    starts_settled: bool = False
+
+    @property
+    def probe_unit(self) -> str:
+        """``"A"`` for a current probe, else ``"V"``."""
+        return "A" if self.probe_current is not None else "V"
 
     @property
     def nodes(self) -> tuple[str, ...]:

@@ -1,4 +1,4 @@
-"""Fit a candidate's free values to a measurement with the fast (closed-form) engine.
+"""Fit a candidate's free values to a measurement with the exact state-space engine.
 
 A fit never changes its inputs. It returns a :class:`FitResult` carrying success, the
 message, the number of model evaluations, residual statistics, AIC and BIC with the
@@ -20,9 +20,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 from scipy.optimize import least_squares
 
-from xcheck.circuit.expand import build_circuit
 from xcheck.circuit.parameters import ParameterSet
-from xcheck.engines.theory import characterise, simulate_theory
 from xcheck.errors import XcheckError
 from xcheck.fitting.candidates import Candidate, FreeParameter
 from xcheck.fitting.identifiability import (
@@ -32,6 +30,7 @@ from xcheck.fitting.identifiability import (
     find_degeneracies,
     merge_groups,
 )
+from xcheck.fitting.model import CandidateModel
 from xcheck.fitting.observation import Observation
 from xcheck.fitting.stats import correlation_from_covariance, covariance_from_jacobian
 from xcheck.fixture.model import Fixture
@@ -85,43 +84,6 @@ class FitResult:
     def failed(self) -> bool:
         """True when the fit did not produce a usable model."""
         return not self.success
-
-
-class _Model:
-    """The closed form for one candidate's free values (an observation's
-    :class:`~xcheck.fitting.observation.ClosedForm`), counting its evaluations."""
-
-    def __init__(self, fixture: Fixture, candidate: Candidate,
-                 free: tuple[FreeParameter, ...]) -> None:
-        self.fixture = fixture
-        self.response = fixture.response
-        self.candidate = candidate
-        self.free = free
-        self.evaluations = 0
-
-    def parameters(self, physical: np.ndarray) -> ParameterSet:
-        return self.candidate.parameters.with_values(
-            {f.key: float(v) for f, v in zip(self.free, physical)}
-        )
-
-    def shape(self, physical: np.ndarray, times: np.ndarray) -> np.ndarray:
-        """Unscaled model probe voltage at ``times`` (s from the event)."""
-        self.evaluations += 1
-        circuit = build_circuit(self.fixture, self.parameters(physical))
-        return simulate_theory(circuit, np.maximum(times, 0.0)).probe_voltage
-
-    def extrema(self, physical: np.ndarray, count: int) -> tuple[np.ndarray, np.ndarray]:
-        """Times (from the event) and probe voltages of the first ``count`` turning
-        points: t_k = k pi / omega_d (exact for a series loop whose current starts at
-        zero: the capacitor voltage's derivative is proportional to
-        exp(-alpha t) sin(omega_d t)), voltages from the closed form at those times."""
-        self.evaluations += 1
-        circuit = build_circuit(self.fixture, self.parameters(physical))
-        second = characterise(circuit)
-        if not second.omega_d > 0:
-            raise XcheckError("this candidate does not ring (not underdamped)")
-        t = np.arange(count) * np.pi / second.omega_d
-        return t, simulate_theory(circuit, t).probe_voltage
 
 
 def fit_candidate(fixture: Fixture, candidate: Candidate, obs: Observation) -> FitResult:
@@ -181,7 +143,7 @@ def _collapse(free: tuple[FreeParameter, ...], groups: tuple[Degeneracy, ...]) -
 
 def _fit(fixture: Fixture, candidate: Candidate, obs: Observation,
          free: tuple[FreeParameter, ...]) -> FitResult:
-    model = _Model(fixture, candidate, free)
+    model = CandidateModel(fixture, candidate, free)
     start = np.array([candidate.parameters.get(f.key, f.start) or f.start for f in free], float)
     lower = np.array([f.lower for f in free], float)
     upper = np.array([f.upper for f in free], float)

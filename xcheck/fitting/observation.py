@@ -3,7 +3,7 @@
 Everything that depends on what was measured lives on the observation, so the fit and
 the comparison never ask which kind they hold:
 
-- its **residuals** (:meth:`Observation.residuals`): how the closed form's prediction is
+- its **residuals** (:meth:`Observation.residuals`): how the exact engine's prediction is
   compared with the readings, with the nuisance values this kind of measurement needs
   so that no candidate loses merely because of the instrument. A trace fits ``gain``
   (probe attenuation or vertical-scale error and the true initial voltage;
@@ -28,7 +28,7 @@ from typing import Callable, ClassVar, Mapping, NamedTuple, Protocol
 import numpy as np
 
 from xcheck.circuit.model import Circuit
-from xcheck.engines.theory import characterise, simulate_theory
+from xcheck.engines.exact import ExactEngine, dominant_ring, simulate_exact
 from xcheck.engines.waveform import Waveform
 from xcheck.errors import XcheckError
 from xcheck.fitting import stats
@@ -41,8 +41,9 @@ Simulate = Callable[[float], Waveform]
 Nuisance = Mapping[str, tuple[float, float]]
 
 
-class ClosedForm(Protocol):
-    """The fast engine as the fit drives it, for one candidate's free values."""
+class FitModel(Protocol):
+    """The exact engine as the fit drives it, for one candidate's free values
+    (:class:`xcheck.fitting.model.CandidateModel`)."""
 
     #: ``"natural"`` or ``"step"``: which turning point a peak table starts at.
     response: str
@@ -131,7 +132,7 @@ class Observation(ABC):
         return np.broadcast_to(np.asarray(self.sigma, float), self.voltage.shape)
 
     @abstractmethod
-    def residuals(self, model: ClosedForm, start: np.ndarray) -> Residuals:
+    def residuals(self, model: FitModel, start: np.ndarray) -> Residuals:
         """The residuals of ``model``, nuisance start values taken at ``start`` (the
         physical free values the fit starts from)."""
 
@@ -154,8 +155,8 @@ class Observation(ABC):
     def engine_curve(self, circuit: Circuit, nuisance: Nuisance,
                      simulate: Simulate) -> tuple[np.ndarray, float]:
         """An engine's prediction of the readings with the fitted ``nuisance`` values
-        applied, and the largest difference of its waveform from the closed form
-        relative to the closed form's amplitude.
+        applied, and the largest difference of its waveform from the exact engine
+        relative to the exact response's amplitude.
 
         Parameters
         ----------
@@ -189,7 +190,7 @@ class TraceObservation(Observation):
 
     discrete: ClassVar[bool] = False
 
-    def residuals(self, model: ClosedForm, start: np.ndarray) -> Residuals:
+    def residuals(self, model: FitModel, start: np.ndarray) -> Residuals:
         time, voltage, sigma = self.time, self.voltage, self.sigmas
         shape0 = model.shape(start, time)
         # Linear least squares for gain and offset at the start values.
@@ -230,7 +231,7 @@ class TraceObservation(Observation):
         times = np.maximum(self.time - nuisance["shift"][0], 0.0)
         wave = simulate(float(times[-1]) * 1.0001)
         raw = wave.at(times)
-        theory = simulate_theory(circuit, times).probe_voltage
+        theory = simulate_exact(circuit, times).probe_voltage
         amplitude = float(np.max(np.abs(theory))) or 1.0
         curve = nuisance["gain"][0] * raw + nuisance["offset"][0]
         return curve, float(np.max(np.abs(raw - theory)) / amplitude)
@@ -272,7 +273,7 @@ class PeakObservation(Observation):
         half = self.period / 2.0
         return first + np.rint((self.time - self.time[0]) / half).astype(int)
 
-    def residuals(self, model: ClosedForm, start: np.ndarray) -> Residuals:
+    def residuals(self, model: FitModel, start: np.ndarray) -> Residuals:
         time, voltage, sigma = self.time, self.voltage, self.sigmas
         index = self.turning_points(model.response)
         count = int(index.max()) + 1
@@ -318,21 +319,26 @@ class PeakObservation(Observation):
                      simulate: Simulate) -> tuple[np.ndarray, float]:
         # The engine's turning points, numbered from the event as the fit numbers the
         # readings, scaled by the fitted amplitude.
-        second = characterise(circuit)
+        engine = ExactEngine(circuit)
+        model = engine.model()
+        ring = dominant_ring(engine, model)
+        if ring is None:
+            raise XcheckError("the fitted candidate does not ring, so it has no turning points")
+        omega_d, alpha = ring
         index = self.turning_points(circuit.response)
-        half = math.pi / second.omega_d
+        half = math.pi / omega_d
         count = int(index.max()) + 1
         wave = simulate((count + 0.5) * half)
         t_theory = np.arange(count) * half
-        # The closed form on the engine's own time points, its turning points found the
+        # The exact response on the engine's own time points, its turning points found the
         # same way: where the probed part has series resistance (ESR) a turning point is
         # not exactly at a multiple of the half period, so like is compared with like.
-        dense = simulate_theory(circuit, wave.time).probe_voltage
-        # The level the ring settles to: the closed form long after the event (60 time
-        # constants, e^-60 ~ 1e-26 of the swing left); 0 for a natural response.
+        dense = engine.signal(wave.time, model)[0]
+        # The level the ring settles to: the exact response long after the event (60
+        # time constants, e^-60 ~ 1e-26 of the swing left); 0 for a natural response.
         level = 0.0
-        if circuit.response == "step" and second.alpha > 0:
-            level = float(simulate_theory(circuit, np.array([60.0 / second.alpha])).probe_voltage[0])
+        if circuit.response == "step" and alpha > 0:
+            level = float(engine.signal(np.array([60.0 / alpha]), model)[0, 0])
         _, v_engine = extrema_near(wave.time, wave.probe_voltage, t_theory, half / 4, level)
         _, theory = extrema_near(wave.time, dense, t_theory, half / 4, level)
         if index[0] == 0:

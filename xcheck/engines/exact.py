@@ -1,0 +1,376 @@
+"""The exact engine: a linear circuit's response from its state space, for many value
+sets at once.
+
+For t >= 0 every source is piecewise constant (on from ``t_on``, off from ``t_off``,
+see :class:`~xcheck.circuit.model.Element`), so the state is, exactly,
+
+    x(t) = e^{A t} x0 + sum_j phi(t - tau_j) B du_j,    phi(s) = int_0^s e^{A r} dr,
+
+with ``du_j`` the change of the source vector at switching time ``tau_j`` (the sources'
+values at t = 0+ count as the change at tau_0 = 0). Written on the eigenvectors
+``A = V diag(lambda) V^-1`` this is a sum of exponentials, ``phi`` becoming
+``expm1(lambda s) / lambda`` (``s`` where lambda = 0), evaluated for a whole batch of
+A matrices with numpy's stacked ``eig``. Where the eigenvectors are ill-conditioned
+(near-repeated roots, critical damping) a value set is integrated instead with the
+matrix exponential of the augmented matrix ``[[A, B u], [0, 0]]`` (``scipy.linalg.expm``),
+stepped from time point to time point, which stays exact at repeated roots.
+
+:class:`ExactEngine` holds one wiring (analysed once with networkx) and evaluates any
+batch of element values on it: this is what the fit and the benchmarks drive.
+:func:`simulate_exact` is the one-circuit view, a :class:`~xcheck.engines.waveform.Waveform`
+like the other engines return.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.linalg
+
+from xcheck.circuit.model import Circuit, Element
+from xcheck.engines.statespace import (
+    BatchModel,
+    LinearMap,
+    Topology,
+    _check_values,
+    assemble,
+    circuit_topology,
+    element_values,
+)
+from xcheck.engines.waveform import Waveform
+from xcheck.errors import SimulationError
+
+#: Largest condition number of a value set's eigenvector matrix for the modal sum; the
+#: sum's rounding error is about this times the machine epsilon (1e6 * 2.2e-16 ~ 2e-10
+#: of the response), beyond it the matrix exponential takes over.
+MODAL_CONDITION_LIMIT = 1e6
+#: Largest batch evaluated in one piece (bounds the (batch, time, state) arrays).
+CHUNK_ELEMENTS = 4_000_000
+
+
+@dataclass(frozen=True)
+class Schedule:
+    """When the sources switch: times ``tau_j`` (s) and the on/off pattern after each.
+
+    Attributes
+    ----------
+    times
+        Switching times, the first 0 (t = 0+), strictly increasing.
+    on
+        ``(len(times), n_inputs)``: 1 where an input is on after that time, else 0.
+    """
+
+    times: np.ndarray
+    on: np.ndarray
+
+    def pattern_at(self, times: np.ndarray) -> np.ndarray:
+        """``(len(times), n_inputs)`` on/off pattern at each time (s)."""
+        index = np.searchsorted(self.times, times, side="right") - 1
+        return self.on[np.clip(index, 0, None)]
+
+
+def source_schedule(top: Topology) -> Schedule:
+    """The switching times of the circuit's sources and which are on after each."""
+    inputs = [top.elements[i] for i in top.inputs]
+    taus = {0.0}
+    for element in inputs:
+        if element.timing in ("step", "pulse") and element.t_on > 0:
+            taus.add(float(element.t_on))
+        if element.timing == "pulse" and element.t_off is not None:
+            taus.add(float(element.t_off))
+    times = np.array(sorted(taus))
+    on = np.array([[1.0 if _is_on(e, t) else 0.0 for e in inputs] for t in times])
+    on = on.reshape(times.size, len(inputs))
+    return Schedule(times, on)
+
+
+def _is_on(element: Element, time: float) -> bool:
+    """True when ``element`` (a source) holds its value just after ``time``."""
+    if element.timing == "dc":
+        return True
+    if time < element.t_on:
+        return False
+    return element.t_off is None or time < element.t_off
+
+
+class ExactEngine:
+    """One circuit's wiring, evaluated exactly for any batch of element values.
+
+    Parameters
+    ----------
+    circuit
+        The circuit; its element values are the defaults of every batch row.
+
+    Raises
+    ------
+    SimulationError
+        When the circuit has no unique solution (see
+        :func:`~xcheck.engines.statespace.circuit_topology`).
+    """
+
+    def __init__(self, circuit: Circuit) -> None:
+        _check_values(circuit)
+        self.circuit = circuit
+        self.topology = circuit_topology(circuit)
+        self.schedule = source_schedule(self.topology)
+        self.names = tuple(e.name for e in self.topology.elements)
+        self._index = {name: k for k, name in enumerate(self.names)}
+
+    def index_of(self, name: str) -> int:
+        """Column of element ``name`` in a batch of values."""
+        return self._index[name]
+
+    def defaults(self, batch: int = 1) -> tuple[np.ndarray, np.ndarray]:
+        """``(batch, n_elements)`` default values and initial conditions."""
+        return element_values(self.topology, batch)
+
+    def model(self, values: np.ndarray | None = None,
+              initials: np.ndarray | None = None) -> BatchModel:
+        """The batch's state-space matrices (defaults where an argument is None)."""
+        batch = 1 if values is None else np.atleast_2d(values).shape[0]
+        default_values, default_initials = self.defaults(batch)
+        values = default_values if values is None else np.atleast_2d(values)
+        initials = default_initials if initials is None else np.atleast_2d(initials)
+        return assemble(self.topology, values, initials, self.circuit.starts_settled)
+
+    def output_map(self, model: BatchModel, signal: str = "probe") -> LinearMap:
+        """The batched map of ``signal``: ``"probe"`` (the probed voltage or current)
+        or ``"loop_current"`` (the current-sense source's current)."""
+        circuit = self.circuit
+        if signal == "loop_current":
+            if circuit.current_sense is None:
+                raise SimulationError("this circuit has no current sense")
+            return model.current[self.index_of(circuit.current_sense)]
+        if circuit.probe_current is not None:
+            return model.current[self.index_of(circuit.probe_current)]
+        plus, minus = circuit.probe
+        for node in (plus, minus):
+            if node not in model.node_voltage:
+                raise SimulationError(f"node {node!r} is not part of the circuit")
+        return model.node_voltage[plus] + (-model.node_voltage[minus])
+
+    def states(self, times: np.ndarray, model: BatchModel) -> np.ndarray:
+        """``(batch, len(times), n_states)`` exact states at ``times`` (s, >= 0)."""
+        times = np.asarray(times, dtype=float)
+        if np.any(times < 0) or not np.all(np.isfinite(times)):
+            raise SimulationError("the exact engine evaluates finite times t >= 0 only")
+        n_batch, n_x = model.x0.shape
+        out = np.empty((n_batch, times.size, n_x))
+        if n_x == 0:
+            return out
+        lam, vec = np.linalg.eig(model.a)
+        with np.errstate(all="ignore"):
+            condition = np.linalg.cond(vec)
+        good = np.isfinite(condition) & (condition < MODAL_CONDITION_LIMIT)
+        rows = np.flatnonzero(good)
+        step = max(1, CHUNK_ELEMENTS // max(1, times.size * n_x))
+        for start in range(0, rows.size, step):
+            chunk = rows[start:start + step]
+            out[chunk] = self._modal(times, model, lam[chunk], vec[chunk], chunk)
+        for row in np.flatnonzero(~good):
+            out[row] = self._stepped(times, model, row)
+        return out
+
+    def _modal(self, times: np.ndarray, model: BatchModel, lam: np.ndarray,
+               vec: np.ndarray, rows: np.ndarray) -> np.ndarray:
+        """Modal sum for the rows whose eigenvectors are well conditioned."""
+        solve = np.linalg.solve
+        coefficient = solve(vec, model.x0[rows].astype(complex)[..., None])[..., 0]
+        # For lambda != 0, phi(s) w = (e^{lambda s} - 1) w / lambda: the switch-on at
+        # t = 0 folds into the coefficient of e^{lambda t}, a constant remains; a zero
+        # root (a node floating between capacitors) integrates to s w instead.
+        constant = np.zeros_like(coefficient)
+        zero = lam == 0
+        safe = np.where(zero, 1.0, lam)
+        later: list[tuple[float, np.ndarray]] = []
+        previous = np.zeros(len(self.topology.inputs))
+        ramp = np.zeros_like(coefficient)
+        for tau, pattern in zip(self.schedule.times, self.schedule.on):
+            change, previous = pattern - previous, pattern
+            if not np.any(change):
+                continue
+            du = model.u[rows] * change
+            w = solve(vec, (model.b[rows] @ du[..., None]).astype(complex))[..., 0]
+            if tau == 0:
+                coefficient = coefficient + np.where(zero, 0.0, w / safe)
+                constant = constant - np.where(zero, 0.0, w / safe)
+                ramp = ramp + np.where(zero, w, 0.0)
+            else:
+                later.append((float(tau), w))
+        modal = np.exp(lam[:, None, :] * times[None, :, None])
+        modal *= coefficient[:, None, :]
+        modal += constant[:, None, :]
+        if np.any(ramp):
+            modal += ramp[:, None, :] * times[None, :, None]
+        for tau, w in later:
+            s = np.clip(times - tau, 0.0, None)
+            modal += _phi(lam[:, None, :], s[None, :, None]) * w[:, None, :]
+        return np.real(np.einsum("btk,bjk->btj", modal, vec))
+
+    def _stepped(self, times: np.ndarray, model: BatchModel, row: int) -> np.ndarray:
+        """Matrix-exponential stepping for one ill-conditioned value set."""
+        a, b, u = model.a[row], model.b[row], model.u[row]
+        n_x = a.shape[0]
+        order = np.argsort(times, kind="stable")
+        taus = self.schedule.times
+        cache: dict[tuple[int, float], np.ndarray] = {}
+
+        def propagator(segment: int, span: float) -> np.ndarray:
+            key = (segment, float(f"{span:.13e}"))
+            if key not in cache:
+                augmented = np.zeros((n_x + 1, n_x + 1))
+                augmented[:n_x, :n_x] = a
+                augmented[:n_x, n_x] = b @ (u * self.schedule.on[segment])
+                cache[key] = scipy.linalg.expm(augmented * span)
+            return cache[key]
+
+        state = np.append(model.x0[row], 1.0)
+        now, segment = 0.0, 0
+        out = np.empty((times.size, n_x))
+        for k in order:
+            target = times[k]
+            while segment + 1 < taus.size and taus[segment + 1] <= target:
+                state = propagator(segment, taus[segment + 1] - now) @ state
+                now, segment = taus[segment + 1], segment + 1
+            if target > now:
+                state = propagator(segment, target - now) @ state
+                now = target
+            out[k] = state[:n_x]
+        return out
+
+    def inputs_at(self, times: np.ndarray, model: BatchModel) -> np.ndarray:
+        """``(batch, len(times), n_inputs)`` source values at ``times``."""
+        pattern = self.schedule.pattern_at(np.asarray(times, dtype=float))
+        return model.u[:, None, :] * pattern[None, :, :]
+
+    def signal(self, times: np.ndarray, model: BatchModel, signal: str = "probe",
+               derivative: int = 0) -> np.ndarray:
+        """``(batch, len(times))`` exact ``signal`` (see :meth:`output_map`) or its
+        ``derivative``-th time derivative (sources constant between switching times).
+        """
+        states = self.states(times, model)
+        inputs = self.inputs_at(times, model)
+        out_map = self.output_map(model, signal)
+        if derivative == 0:
+            return (np.einsum("btx,bx->bt", states, out_map.x_coef)
+                    + np.einsum("btu,bu->bt", inputs, out_map.u_coef))
+        rate = (np.einsum("btx,bjx->btj", states, model.a)
+                + np.einsum("btu,bju->btj", inputs, model.b))
+        for _ in range(derivative - 1):
+            rate = np.einsum("btx,bjx->btj", rate, model.a)
+        return np.einsum("btx,bx->bt", rate, out_map.x_coef)
+
+    def response(self, times: np.ndarray, values: np.ndarray | None = None,
+                 initials: np.ndarray | None = None, signal: str = "probe") -> np.ndarray:
+        """``(batch, len(times))`` probed signal for a batch of element values.
+
+        Parameters
+        ----------
+        times
+            Seconds from the event, >= 0, any order.
+        values, initials
+            ``(batch, n_elements)`` element values and initial conditions in the
+            column order of :attr:`names`; the circuit's own where None.
+        signal
+            ``"probe"`` or ``"loop_current"``.
+        """
+        return self.signal(times, self.model(values, initials), signal)
+
+    def poles(self, values: np.ndarray | None = None) -> np.ndarray:
+        """``(batch, n_states)`` natural frequencies (1/s)."""
+        return np.linalg.eigvals(self.model(values).a)
+
+
+def _phi(lam: np.ndarray, s: np.ndarray) -> np.ndarray:
+    """``expm1(lam s) / lam``, tending to ``s`` as lam -> 0 (element-wise)."""
+    product = lam * s
+    with np.errstate(all="ignore"):
+        ratio = np.expm1(product) / np.where(lam == 0, 1.0, lam)
+    small = np.abs(product) < 1e-8
+    return np.where(small, s * (1.0 + product / 2.0), ratio)
+
+
+def simulate_exact(circuit: Circuit, time: np.ndarray) -> Waveform:
+    """The exact response of one circuit at ``time`` (s from the event, >= 0).
+
+    Returns
+    -------
+    Waveform
+        Engine ``"exact"``; ``probe_voltage`` holds the probed signal (A for a current
+        probe) and ``loop_current`` the current-sense source's current when the circuit
+        has one.
+    """
+    engine = ExactEngine(circuit)
+    model = engine.model()
+    time = np.asarray(time, dtype=float)
+    probe = engine.signal(time, model)[0]
+    current = None
+    if circuit.current_sense is not None:
+        current = engine.signal(time, model, "loop_current")[0]
+    return Waveform(time, probe, current, engine="exact")
+
+
+def dominant_ring(engine: ExactEngine, model: BatchModel) -> tuple[float, float] | None:
+    """(omega_d in rad/s, alpha in 1/s) of the ringing mode that carries the most of the
+    probed signal in batch row 0, or None when no mode rings."""
+    lam, vec = np.linalg.eig(model.a[0])
+    if lam.size == 0:
+        return None
+    out_map = engine.output_map(model)
+    with np.errstate(all="ignore"):
+        z0 = np.linalg.lstsq(vec, model.x0[0].astype(complex), rcond=None)[0]
+        w0 = np.linalg.lstsq(vec, (model.b[0] @ (model.u[0] * engine.schedule.on[0])).astype(complex),
+                             rcond=None)[0]
+        weight = np.abs(out_map.x_coef[0] @ vec) * np.abs(
+            z0 + np.where(lam != 0, w0 / np.where(lam == 0, 1, lam), 0))
+    ringing = np.abs(lam.imag) > 1e-9 * np.abs(lam)
+    if not np.any(ringing):
+        return None
+    weight = np.where(ringing & np.isfinite(weight), weight, -1.0)
+    k = int(np.argmax(weight))
+    return float(abs(lam[k].imag)), float(-lam[k].real)
+
+
+def turning_points(engine: ExactEngine, model: BatchModel, count: int,
+                   response: str) -> tuple[np.ndarray, np.ndarray]:
+    """Times and values of the probed signal's first ``count`` turning points of its
+    dominant ring in batch row 0: turning point 0 is the event itself (t = 0), point
+    ``k`` the extremum nearest ``k`` half periods, located exactly (Newton's method on
+    the signal's derivative, which the engine gives exactly).
+
+    Raises
+    ------
+    SimulationError
+        When the circuit does not ring.
+    """
+    ring = dominant_ring(engine, model)
+    if ring is None:
+        raise SimulationError("this candidate does not ring (no oscillating mode)")
+    omega_d, _ = ring
+    half = math.pi / omega_d
+    samples = 64
+    grid = np.linspace(0.0, (count + 0.5) * half, int((count + 0.5) * samples) + 1)
+    values = engine.signal(grid, model)[0]
+    level = float(values[-1]) if response == "step" else 0.0
+    times = np.zeros(count)
+    for k in range(1, count):
+        centre = k * half
+        window = np.abs(grid - centre) <= half / 4
+        if not np.any(window):
+            continue
+        local = np.flatnonzero(window)
+        times[k] = grid[local[np.argmax(np.abs(values[local] - level))]]
+    # Newton on the derivative from the grid point (spacing half / 64: quadratic
+    # convergence from there; six steps take it to rounding).
+    inner = times[1:]
+    for _ in range(6):
+        if inner.size == 0:
+            break
+        slope = engine.signal(inner, model, derivative=1)[0]
+        curve = engine.signal(inner, model, derivative=2)[0]
+        move = np.where(curve != 0, slope / np.where(curve == 0, 1.0, curve), 0.0)
+        inner = np.clip(inner - np.clip(move, -half / 8, half / 8), 0.0, None)
+    times[1:] = inner
+    return times, engine.signal(times, model)[0]
