@@ -161,6 +161,7 @@ class ExactEngine:
         if n_x == 0:
             return out
         lam, vec = np.linalg.eig(model.a)
+        lam, vec = lam.astype(complex), vec.astype(complex)  # real when nothing rings
         with np.errstate(all="ignore"):
             condition = np.linalg.cond(vec)
         good = np.isfinite(condition) & (condition < MODAL_CONDITION_LIMIT)
@@ -316,6 +317,7 @@ def dominant_ring(engine: ExactEngine, model: BatchModel) -> tuple[float, float]
     """(omega_d in rad/s, alpha in 1/s) of the ringing mode that carries the most of the
     probed signal in batch row 0, or None when no mode rings."""
     lam, vec = np.linalg.eig(model.a[0])
+    lam, vec = lam.astype(complex), vec.astype(complex)
     if lam.size == 0:
         return None
     out_map = engine.output_map(model)
