@@ -135,21 +135,38 @@ def test_stated_losses_above_what_the_ringing_shows_are_called_too_high(lossy_fi
     capture = lossy_capture(32).with_(resistance=0.6)
     path = write_capture_csv(tmp_path / "low.csv", *capture_trace(capture))
     result = run_comparison(lossy_fixture, trace=path, use_ngspice=False)
-    (finding,) = write_loop_findings(lossy_fixture, list(result.outcomes))
+    alpha = result.measured.neper_frequency_per_s.value
+    (finding,) = write_loop_findings(lossy_fixture, list(result.outcomes), alpha)
     match = re.fullmatch(
-        r"The DC loop reading accounts for (\S+ [mµ]?Ω) of the (\S+ [mµ]?Ω) series resistance the best "
-        r"candidate needs, and stated ESR for (\S+ [mµ]?Ω): together (\S+ [mµ]?Ω) MORE than the ringing "
+        r"The DC loop reading accounts for (\S+ [mµ]?Ω) of the (\S+ [mµ]?Ω) series resistance the "
+        r"measured decay rate implies, and stated ESR for (\S+ [mµ]?Ω): together (\S+ [mµ]?Ω) MORE than the ringing "
         r"shows\. A stated ESR or the loop reading is too high .*\.",
         finding)
     assert match, finding
     dc, total, esr, excess = (_si(g) for g in match.groups())
     assert dc == pytest.approx(DC_READING_OHM, rel=PRINT_ROUNDING)
     assert esr == pytest.approx(STATED_ESR_OHM, rel=PRINT_ROUNDING)
-    # Reference: the capture's construction, 1.005 + 0.020 - 0.6 = 0.425 ohm, within 3
-    # standard errors of the best candidate's fitted loss (plus print rounding).
-    stderr = max(v.stderr for v in result.best.fit.fitted if v.unit == "ohm")
+    # Reference: the capture's construction, 1.005 + 0.020 - 0.6 = 0.425 ohm. The needed
+    # resistance is the stated one scaled by the measured over the model's decay rate
+    # (alpha = R / 2L for a series loop; common practice, no source); the ring-down
+    # estimate's alpha is good to about 1 % on this capture, and the loop's other
+    # damping (none stated) and ESR's frequency do not enter, so 3 % of the total.
     truth = DC_READING_OHM + STATED_ESR_OHM - 0.6
-    assert abs(excess - truth) < 3 * stderr + PRINT_ROUNDING * truth
-    assert abs(total - 0.6) < 3 * stderr + PRINT_ROUNDING * 0.6
+    assert abs(total - 0.6) < 0.03 * 0.6 + PRINT_ROUNDING * 0.6
+    assert abs(excess - truth) < 0.03 * 0.6 + PRINT_ROUNDING * truth
     assert finding in result.verdict
     assert "beyond what DC measurements explain" not in result.verdict
+
+
+def test_a_value_stopped_at_zero_is_called_so(lossy_fixture) -> None:
+    from xcheck.fitting.fit import FittedValue
+    from xcheck.verdict import _bound_sentence
+
+    value = FittedValue("loop.extra_resistance", ("loop", "extra_resistance"), 1e-12, 1e-3,
+                        "ohm", 0.0, 0.0, 10.0)
+    assert value.at_bound
+    text = _bound_sentence(lossy_fixture, value)
+    assert "stopped at its lower bound of 0" in text and "cannot be negative" in text
+    inside = FittedValue("loop.extra_resistance", ("loop", "extra_resistance"), 0.3, 1e-3,
+                         "ohm", 0.0, 0.0, 10.0)
+    assert not inside.at_bound

@@ -1,7 +1,7 @@
-"""The three-way comparison: measured versus SPICE versus closed-form theory.
+"""The three-way comparison: measured versus SPICE versus circuit theory (the exact state space).
 
 :func:`run_comparison` reads and aligns the measurement, estimates its ring-down,
-fits every candidate with the closed-form engine, evaluates each fitted candidate in
+fits every candidate with the exact state-space engine, evaluates each fitted candidate in
 ngspice, ranks the candidates by BIC and writes a verdict. It returns a
 :class:`~xcheck.outcome.Comparison` (the records are in :mod:`xcheck.outcome`, the
 verdict's words in :mod:`xcheck.verdict`); rendering is :mod:`xcheck.report`'s job.
@@ -23,6 +23,7 @@ from xcheck.fitting.candidates import (
     series_resistance,
 )
 from xcheck.circuit.expand import build_circuit
+from xcheck.engines.exact import ExactEngine, dominant_ring
 from xcheck.engines.theory import TheoryNotApplicable, characterise
 from xcheck.errors import SimulationError, XcheckError
 from xcheck.fitting.fit import FitResult, fit_candidate
@@ -112,7 +113,7 @@ def run_comparison(
     measurement_path = trace if trace is not None else peaks
     inputs.append(InputFile("trace" if trace is not None else "peak table",
                             display_path(measurement_path), sha256_of(measurement_path)))
-    loop_findings = tuple(write_loop_findings(fixture, ordered))
+    loop_findings = tuple(write_loop_findings(fixture, ordered, alpha))
     verdict = write_verdict(fixture, measured, ordered, loop_findings)
     return Comparison(fixture, measured, observation, tuple(ordered), verdict, tuple(inputs),
                       loop_findings, {}, version)
@@ -143,10 +144,14 @@ def _evaluate(
     try:
         second = characterise(circuit)
     except TheoryNotApplicable as exc:
+        # The exact engine is the theory leg; the closed form only adds its formulas
+        # to the report where the circuit reduces to a textbook loop.
         second = None
-        notes.append(str(exc))
+        notes.append(f"no closed form for the report's formulas: {exc}")
     theory_curve = fit.model
-    ring = (second.omega_d / (2 * math.pi), second.alpha) if second and second.omega_d > 0 else None
+    engine = ExactEngine(circuit)
+    dominant = dominant_ring(engine, engine.model())
+    ring = (dominant[0] / (2 * math.pi), dominant[1]) if dominant is not None else None
     theory_metrics = _metrics("theory", obs, theory_curve, fit, measured, ring)
     ngspice_metrics = None
     ngspice_curve = None
@@ -194,7 +199,7 @@ def _metrics(engine: str, obs: Observation, curve: np.ndarray | None, fit: FitRe
     else:
         # For a peak table these are voltages only (ngspice's extremum times are not
         # refitted): comparable between candidates evaluated by ngspice, not with the
-        # closed-form BIC.
+        # exact engine's BIC.
         chi2 = float(np.sum((error / obs.sigmas) ** 2))
         _, aic, bic = obs.criteria(chi2, error.size, fit.k)
     f_err = a_err = float("nan")

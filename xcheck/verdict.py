@@ -11,13 +11,59 @@ from __future__ import annotations
 import math
 
 from xcheck.fixture.schema import label_key
-from xcheck.fitting.candidates import ac_series_keys, dc_series_keys, describe_key, meter_uncertainty
+from xcheck.fitting.candidates import (
+    EXTRA_RESISTANCE,
+    ac_series_keys,
+    dc_series_keys,
+    describe_key,
+    meter_uncertainty,
+)
+from xcheck.fitting.fit import FittedValue
 from xcheck.fixture.model import Fixture
 from xcheck.measured import Measured
 from xcheck.outcome import CandidateOutcome
 from xcheck.values import format_eng
 
-def write_loop_findings(fixture: Fixture, outcomes: list[CandidateOutcome]) -> list[str]:
+#: A model decay rate this far from the measured one means the candidate does not
+#: account for the damping (the ring-down estimate's alpha is good to about 1 %).
+ALPHA_MISMATCH = 0.02
+
+
+def _needed_resistance(best: CandidateOutcome, measured_alpha: float | None) -> tuple[float, str]:
+    """The series resistance the measurement needs, and what it rests on.
+
+    The best candidate's series resistance when it accounts for the damping; else (its
+    fitted extra loss stopped at its lower bound of zero, or it fits none and its decay
+    rate is off by more than :data:`ALPHA_MISMATCH`) that resistance scaled by the
+    measured over the model's decay rate, exact for a series loop whose damping is all
+    series resistance (alpha = R / 2L; common practice, no source).
+    """
+    total = best.series_resistance_ohm
+    extra = [v for v in best.fit.fitted if v.key == EXTRA_RESISTANCE]
+    pinned = any(v.at_bound and v.lower == 0 and v.value - v.lower <= v.upper - v.value
+                 for v in extra)
+    theory = best.theory
+    if not measured_alpha or theory is None:
+        return total, "the best candidate needs"
+    model_alpha = measured_alpha + theory.neper_frequency_error_per_s
+    if not (math.isfinite(model_alpha) and model_alpha > 0):
+        return total, "the best candidate needs"
+    off = abs(model_alpha / measured_alpha - 1.0) > ALPHA_MISMATCH
+    if pinned or (not extra and off):
+        return total * measured_alpha / model_alpha, "the measured decay rate implies"
+    return total, "the best candidate needs"
+
+
+def _value_or_stated(fixture: Fixture, outcome: CandidateOutcome, key: tuple[str, str]) -> float:
+    value = outcome.fit.parameters.get(key) if outcome.fit.parameters is not None else None
+    if value is None:
+        part = fixture.parts.get(key[0])
+        value = part.parasitics.get(key[1]) if part is not None else None
+    return float(value or 0.0)
+
+
+def write_loop_findings(fixture: Fixture, outcomes: list[CandidateOutcome],
+                        measured_alpha: float | None = None) -> list[str]:
     """How much series loss the best fit needs beyond the DC loop reading.
 
     Parameters
@@ -26,6 +72,9 @@ def write_loop_findings(fixture: Fixture, outcomes: list[CandidateOutcome]) -> l
         The fixture; its ``[loop_reading]`` (if any) and itemised DC resistances.
     outcomes
         Every candidate's outcome; the one ranked 1 is the best.
+    measured_alpha
+        The ring-down estimate's decay rate (1/s); used when the best candidate's
+        extra loss stopped at zero (see :func:`_needed_resistance`).
 
     Returns
     -------
@@ -36,14 +85,16 @@ def write_loop_findings(fixture: Fixture, outcomes: list[CandidateOutcome]) -> l
     best = next((o for o in outcomes if o.ranked.rank == 1), None)
     if best is None or best.fit.parameters is None:
         return findings
-    total = best.series_resistance_ohm
+    total, basis = _needed_resistance(best, measured_alpha)
     if fixture.loop_reading is not None:
         dc = fixture.loop_reading.value
-        esr = sum(best.fit.parameters.get(key, 0.0) or 0.0 for key in ac_series_keys(fixture))
+        # The best candidate's ESR where it has one, else the fixture's stated value
+        # (the label-only rung carries no parasitics).
+        esr = sum(_value_or_stated(fixture, best, key) for key in ac_series_keys(fixture))
         beyond = total - dc - esr
         sigma = meter_uncertainty(fixture.loop_reading.reading)
         head = (f"The DC loop reading accounts for {format_eng(dc, 'ohm')} of the "
-                f"{format_eng(total, 'ohm')} series resistance the best candidate needs, and "
+                f"{format_eng(total, 'ohm')} series resistance {basis}, and "
                 f"stated ESR for {format_eng(esr, 'ohm')}")
         if beyond > 2 * sigma:
             findings.append(
@@ -66,8 +117,8 @@ def write_loop_findings(fixture: Fixture, outcomes: list[CandidateOutcome]) -> l
     else:
         dc_known = sum(best.fit.parameters.get(k, 0.0) or 0.0 for k in dc_series_keys(fixture))
         findings.append(
-            f"Itemised DC resistances add up to {format_eng(dc_known, 'ohm')}; the best "
-            f"candidate needs {format_eng(total, 'ohm')} in all. A DC loop reading "
+            f"Itemised DC resistances add up to {format_eng(dc_known, 'ohm')}; "
+            f"{basis} {format_eng(total, 'ohm')} in all. A DC loop reading "
             "([loop_reading]) would show how much of it is beyond DC."
         )
     return findings
@@ -133,6 +184,19 @@ def _misfit(best: CandidateOutcome, measured: Measured) -> float | None:
     return ratio if ratio > MISFIT_LIMIT else None
 
 
+def _bound_sentence(fixture: Fixture, value: FittedValue) -> str:
+    """Words for a fitted value that ended on one of its bounds."""
+    which = "lower" if abs(value.value - value.lower) <= abs(value.upper - value.value) else "upper"
+    edge = value.lower if which == "lower" else value.upper
+    text = (f"{describe_key(fixture, value.key)} stopped at its {which} bound of "
+            f"{format_eng(edge, value.unit)}, so its ± understates the uncertainty")
+    if which == "lower" and edge == 0:
+        text += (": the data want less than none of it (a physical value cannot be "
+                 "negative), so the stated values already account for more than was "
+                 "measured; check them")
+    return text
+
+
 def write_verdict(fixture: Fixture, measured: Measured, outcomes: list[CandidateOutcome],
                   loop_findings: tuple[str, ...]) -> str:
     """One paragraph a reviewer can read: best candidate, the fitted extra, how much
@@ -182,6 +246,8 @@ def write_verdict(fixture: Fixture, measured: Measured, outcomes: list[Candidate
             f"Fitted {describe_key(fixture, value.key)} = {format_eng(value.value, value.unit)} ± "
             f"{format_eng(value.stderr, value.unit)}{_against_label(fixture, value)}."
         )
+        if value.at_bound:
+            parts.append(_bound_sentence(fixture, value))
     parts.extend(_degeneracy_sentences(fixture, best))
     for other in outcomes:
         if other is best or other.failed or other.ranked.evidence != "not distinguishable":

@@ -1,17 +1,18 @@
 """``xcheck simulate FIXTURE [--out DIR]``: predict a fixture's waveform two ways.
 
 Builds the circuit from the values the fixture states (measured where given, else the
-label; parasitics written ``"?"`` are left out and listed), runs ngspice and the closed
-form, and writes into DIR (default ``reports/<fixture name>/simulate/``):
+label; parasitics written ``"?"`` are left out and listed), runs ngspice and the exact
+state-space engine, and writes into DIR (default ``reports/<fixture name>/simulate/``):
 
 - ``prediction.csv``: ``time_s,ngspice_probe_V,theory_probe_V`` and, when the loop
-  current is known, ``ngspice_current_A,theory_current_A``; the closed form is
-  evaluated on ngspice's own time points. Without a closed form only the ngspice
-  columns are written.
-- ``overlay.png``: both probe voltages and their difference against time.
+  current is known, ``ngspice_current_A,theory_current_A``; the theory columns are the
+  exact engine on ngspice's own time points (a current probe's columns hold amperes).
+- ``overlay.png``: both probe signals and their difference against time.
 
-It prints alpha, omega0, f_d, zeta and Q and the largest difference between the two
-engines. Each file is written atomically (a temporary file, then a rename), and only
+It prints the natural modes (frequency, damping, share of the response, the parts that
+make each), alpha, omega0, f_d, zeta and Q where the circuit reduces to a textbook loop
+(with the closed form's difference from the exact engine), and the largest difference
+between the two engines. Each file is written atomically (a temporary file, then a rename), and only
 over files an earlier ``xcheck simulate`` wrote. The prediction is
 :func:`xcheck.engines.predict.predict_fixture`, the figure
 :func:`xcheck.report.figures.prediction_figure`; this module holds the arguments, the
@@ -92,10 +93,12 @@ def summary_text(fixture: Fixture, prediction: Prediction, written: list[Path]) 
         lines.append(
             "  not known (written '?'), so left out of both predictions: " + ", ".join(unknown)
         )
+    if prediction.modes:
+        lines.append("  natural modes (exact state space):")
+        lines += [f"    {mode.sentence()}" for mode in prediction.modes]
     order = prediction.order
     if order is None:
-        lines.append(f"  closed form does not apply: {prediction.why_no_theory}")
-        lines.append("  written: the ngspice prediction only")
+        lines.append(f"  no closed form (not a textbook loop): {prediction.why_no_theory}")
     elif order.regime == "first order":
         lines.append("  closed form: first-order loop")
         lines.append(f"    time constant  {format_eng(order.time_constant, 's')}")
@@ -110,6 +113,9 @@ def summary_text(fixture: Fixture, prediction: Prediction, written: list[Path]) 
             f"    zeta (damping ratio)         {order.zeta:.4g}",
             f"    Q (quality factor)           {order.q:.4g}",
         ]
+    if prediction.closed_form_gap is not None:
+        lines.append(f"    closed form vs exact engine: {prediction.closed_form_gap:.2e} of "
+                     f"{format_eng(prediction.reference, 'V')}")
     gap = prediction.largest_difference
     if gap is not None:
         size, when = gap

@@ -1,8 +1,10 @@
-"""Predict a fixture's waveform with both engines: ngspice and the closed form.
+"""Predict a fixture's waveform with both engines: ngspice and the exact state space.
 
 :func:`predict_fixture` builds the circuit from the values the fixture states (measured
 where given, else the label; parasitics written ``"?"`` are left out and listed), runs
-ngspice and, where it applies, the closed form on ngspice's own time points.
+ngspice and the exact engine (:mod:`xcheck.engines.exact`) on ngspice's own time points,
+and, where the circuit reduces to a textbook loop, the closed form as the exact
+engine's check (its characteristic numbers go into the printout).
 :func:`write_csv` writes the result as ``time_s,ngspice_probe_V,theory_probe_V`` and,
 when the loop current is known, ``ngspice_current_A,theory_current_A``.
 """
@@ -17,6 +19,8 @@ import numpy as np
 from xcheck.circuit.expand import build_circuit
 from xcheck.circuit.model import Circuit
 from xcheck.circuit.parameters import parameters_from_fixture
+from xcheck.engines.exact import simulate_exact
+from xcheck.engines.modes import NamedMode, natural_modes_named
 from xcheck.engines.ngspice import simulate_ngspice
 from xcheck.engines.theory import SecondOrder, TheoryNotApplicable, characterise, simulate_theory
 from xcheck.engines.timing import reference_voltage
@@ -36,11 +40,16 @@ class Prediction:
     ngspice
         ngspice's waveform.
     theory
-        The closed form on ngspice's time points, or None when it does not apply.
+        The exact engine on ngspice's time points (the theory leg).
     order
-        The reduced loop's characteristic numbers, or None.
+        The reduced loop's characteristic numbers from the closed form, or None.
     why_no_theory
         Why the closed form does not apply ("" when it does).
+    closed_form_gap
+        Largest |exact - closed form| over the reference voltage, None without a
+        closed form.
+    modes
+        The circuit's natural modes (see :func:`xcheck.engines.modes.natural_modes_named`).
     reference
         The voltage differences are relative to (initial capacitor voltage or step), V.
     left_out
@@ -56,6 +65,8 @@ class Prediction:
     reference: float
     left_out: tuple[str, ...] = ()
     title: str = ""
+    closed_form_gap: float | None = None
+    modes: tuple[NamedMode, ...] = ()
 
     @property
     def largest_difference(self) -> tuple[float, float] | None:
@@ -94,14 +105,18 @@ def predict(circuit: Circuit, left_out: tuple[str, ...] = ()) -> Prediction:
     Prediction
     """
     spice = simulate_ngspice(circuit)
+    theory = simulate_exact(circuit, spice.time)
+    reference = reference_voltage(circuit)
+    gap = None
     try:
         order = characterise(circuit)
-        theory = simulate_theory(circuit, spice.time)
+        closed = simulate_theory(circuit, spice.time)
         why = ""
+        gap = float(np.max(np.abs(closed.probe_voltage - theory.probe_voltage))) / reference
     except TheoryNotApplicable as exc:
-        order, theory, why = None, None, str(exc)
-    return Prediction(spice, theory, order, why, reference_voltage(circuit), left_out,
-                      circuit.title)
+        order, why = None, str(exc)
+    return Prediction(spice, theory, order, why, reference, left_out, circuit.title, gap,
+                      natural_modes_named(circuit))
 
 
 def unknown_parasitics(fixture: Fixture) -> tuple[str, ...]:

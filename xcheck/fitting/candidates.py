@@ -283,9 +283,10 @@ def _dedupe(free: list[FreeParameter]) -> list[FreeParameter]:
 def _extra_loss_parameter(fixture: Fixture, parameters: ParameterSet) -> FreeParameter:
     present = series_resistance(fixture, parameters)
     start = parameters.get(EXTRA_RESISTANCE, 0.0) or 0.0
-    # The stated losses may be overestimated: allow the extra loss to go negative, but
-    # never so far that the total series resistance becomes negative.
-    lower = start - 0.999 * present if present > 0 else 0.0
+    # Bounded at zero by construction: a resistance cannot be negative. When the stated
+    # losses already exceed the measured damping, the fit stops at zero and the verdict
+    # says so (a value at its bound), rather than a negative resistance winning.
+    lower = 0.0
     return FreeParameter(
         EXTRA_RESISTANCE,
         start=start,
