@@ -16,7 +16,7 @@ import tempfile
 from dataclasses import dataclass
 from pathlib import Path
 
-from benchmarks import bench_crb, bench_ngspice, bench_reader, bench_startup
+from benchmarks import bench_crb, bench_exact, bench_ngspice, bench_reader, bench_startup
 from benchmarks.table import NOT_MEASURED, Row, machine, render
 
 REPO = Path(__file__).resolve().parent.parent
@@ -33,17 +33,17 @@ class Sizes:
     crb_trials: int
     bisection_steps: int
     startup_runs: int
+    exact_sets: int
+    exact_spice_runs: int
 
 
-FULL = Sizes(1_000_000, 7, 10_000_000, 3, 300, 10, 7)
-QUICK = Sizes(20_000, 1, 100_000, 1, 2, 0, 1)
+FULL = Sizes(1_000_000, 7, 10_000_000, 3, 300, 10, 7, 1000, 20)
+QUICK = Sizes(20_000, 1, 100_000, 1, 2, 0, 1, 10, 1)
 
 
 def not_measured() -> list[Row]:
-    """Rows (d) and (e), not measured yet."""
+    """Row (e), not measured yet."""
     return [
-        Row("d", "state-space engine speed", "not set yet", "ngspice on the same circuits", "",
-            NOT_MEASURED, "not measured yet: needs the vectorised state-space engine"),
         Row("e", "compare end to end (1e4/1e5/1e6 samples: wall time, growth exponent)",
             "not set yet", "reading the trace + the ngspice runs alone", "",
             NOT_MEASURED, "not measured yet: needs the compare end-to-end harness"),
@@ -74,6 +74,7 @@ def all_rows(sizes: Sizes, large: bool, workdir: Path) -> list[Row]:
         rows += bench_reader.measure(sizes.large_rows, sizes.large_repeat, False, "a-large", workdir)
     rows += bench_crb.rows(sizes.crb_trials)
     rows += bench_ngspice.rows(sizes.bisection_steps)
+    rows += bench_exact.rows(sizes.exact_sets, sizes.exact_spice_runs)
     rows += not_measured()
     rows += bench_startup.rows(sizes.startup_runs)
     return rows

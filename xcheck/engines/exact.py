@@ -153,11 +153,20 @@ class ExactEngine:
 
     def states(self, times: np.ndarray, model: BatchModel) -> np.ndarray:
         """``(batch, len(times), n_states)`` exact states at ``times`` (s, >= 0)."""
+        n_batch, n_x = model.x0.shape
+        identity = np.broadcast_to(np.eye(n_x), (n_batch, n_x, n_x))
+        return self._projected(times, model, identity)
+
+    def _projected(self, times: np.ndarray, model: BatchModel,
+                   project: np.ndarray) -> np.ndarray:
+        """``(batch, len(times), q)``: the states at ``times`` times ``project``
+        (``(batch, n_states, q)``), without forming the states where the modal sum
+        applies."""
         times = np.asarray(times, dtype=float)
         if np.any(times < 0) or not np.all(np.isfinite(times)):
             raise SimulationError("the exact engine evaluates finite times t >= 0 only")
         n_batch, n_x = model.x0.shape
-        out = np.empty((n_batch, times.size, n_x))
+        out = np.zeros((n_batch, times.size, project.shape[-1]))
         if n_x == 0:
             return out
         lam, vec = np.linalg.eig(model.a)
@@ -169,13 +178,14 @@ class ExactEngine:
         step = max(1, CHUNK_ELEMENTS // max(1, times.size * n_x))
         for start in range(0, rows.size, step):
             chunk = rows[start:start + step]
-            out[chunk] = self._modal(times, model, lam[chunk], vec[chunk], chunk)
+            out[chunk] = self._modal(times, model, lam[chunk], vec[chunk], chunk,
+                                     project[chunk])
         for row in np.flatnonzero(~good):
-            out[row] = self._stepped(times, model, row)
+            out[row] = self._stepped(times, model, row) @ project[row]
         return out
 
     def _modal(self, times: np.ndarray, model: BatchModel, lam: np.ndarray,
-               vec: np.ndarray, rows: np.ndarray) -> np.ndarray:
+               vec: np.ndarray, rows: np.ndarray, project: np.ndarray) -> np.ndarray:
         """Modal sum for the rows whose eigenvectors are well conditioned."""
         solve = np.linalg.solve
         coefficient = solve(vec, model.x0[rows].astype(complex)[..., None])[..., 0]
@@ -200,15 +210,35 @@ class ExactEngine:
                 ramp = ramp + np.where(zero, w, 0.0)
             else:
                 later.append((float(tau), w))
-        modal = np.exp(lam[:, None, :] * times[None, :, None])
-        modal *= coefficient[:, None, :]
-        modal += constant[:, None, :]
+        # Each mode's weight in each output, and one of each conjugate pair only: the
+        # states are real, so a pair contributes twice the real part of one member.
+        weight = np.einsum("bjk,bjq->bqk", vec, project.astype(complex))
+        keep, factor = _one_per_pair(lam)
+        lam = np.take_along_axis(lam, keep, 1)
+        weight = np.take_along_axis(weight, keep[:, None, :], 2) * factor[:, None, :]
+
+        def kept(x: np.ndarray) -> np.ndarray:
+            return np.take_along_axis(x, keep, 1)[:, None, :] * weight  # (batch, q, k)
+
+        # Re(g e^{lambda t}) = e^{sigma t} (Re g cos(omega t) - Im g sin(omega t)), in
+        # real arithmetic (numpy's real exp, cos and sin are vectorised; complex exp is
+        # not), and the constant and ramp terms summed over the modes once.
+        out = _oscillations(lam, kept(coefficient), times)
+        out += np.real(np.sum(kept(constant), axis=2))[:, None, :]
         if np.any(ramp):
-            modal += ramp[:, None, :] * times[None, :, None]
+            out += np.real(np.sum(kept(ramp), axis=2))[:, None, :] * times[None, :, None]
+        zero = np.take_along_axis(zero, keep, 1)
+        safe = np.where(zero, 1.0, lam)
         for tau, w in later:
+            w = np.take_along_axis(w, keep, 1)
             s = np.clip(times - tau, 0.0, None)
-            modal += _phi(lam[:, None, :], s[None, :, None]) * w[:, None, :]
-        return np.real(np.einsum("btk,bjk->btj", modal, vec))
+            # phi(s) w = (e^{lambda s} - 1) w / lambda, or s w at a zero root.
+            h = np.where(zero, 0.0, w / safe)[:, None, :] * weight
+            out += _oscillations(lam, h, s) - np.real(np.sum(h, axis=2))[:, None, :]
+            ramp_w = np.where(zero, w, 0.0)
+            if np.any(ramp_w):
+                out += np.real(np.sum(ramp_w[:, None, :] * weight, axis=2))[:, None, :] * s[None, :, None]
+        return out
 
     def _stepped(self, times: np.ndarray, model: BatchModel, row: int) -> np.ndarray:
         """Matrix-exponential stepping for one ill-conditioned value set."""
@@ -251,17 +281,17 @@ class ExactEngine:
         """``(batch, len(times))`` exact ``signal`` (see :meth:`output_map`) or its
         ``derivative``-th time derivative (sources constant between switching times).
         """
-        states = self.states(times, model)
-        inputs = self.inputs_at(times, model)
         out_map = self.output_map(model, signal)
-        if derivative == 0:
-            return (np.einsum("btx,bx->bt", states, out_map.x_coef)
-                    + np.einsum("btu,bu->bt", inputs, out_map.u_coef))
-        rate = (np.einsum("btx,bjx->btj", states, model.a)
-                + np.einsum("btu,bju->btj", inputs, model.b))
-        for _ in range(derivative - 1):
-            rate = np.einsum("btx,bjx->btj", rate, model.a)
-        return np.einsum("btx,bx->bt", rate, out_map.x_coef)
+        row, u_row = out_map.x_coef, out_map.u_coef  # y = row x + u_row u
+        for _ in range(derivative):
+            # d/dt (r x + q u) = r A x + r B u between switching times (u constant).
+            row, u_row = np.einsum("bx,bxj->bj", row, model.a), np.einsum("bx,bxu->bu", row, model.b)
+        values = self._projected(times, model, row[:, :, None])[..., 0]
+        # The sources' direct part: one number per value set and switching segment.
+        times = np.asarray(times, dtype=float)
+        segment = np.clip(np.searchsorted(self.schedule.times, times, side="right") - 1, 0, None)
+        direct = (u_row * model.u) @ self.schedule.on.T  # (batch, segments)
+        return values + direct[:, segment]
 
     def response(self, times: np.ndarray, values: np.ndarray | None = None,
                  initials: np.ndarray | None = None, signal: str = "probe") -> np.ndarray:
@@ -282,6 +312,75 @@ class ExactEngine:
     def poles(self, values: np.ndarray | None = None) -> np.ndarray:
         """``(batch, n_states)`` natural frequencies (1/s)."""
         return np.linalg.eigvals(self.model(values).a)
+
+
+def _oscillations(lam: np.ndarray, gain: np.ndarray, times: np.ndarray) -> np.ndarray:
+    """``(batch, len(times), q)``: sum over modes k of Re(gain[b, q, k] e^{lam[b, k] t}).
+
+    On a uniform grid t_n = t_0 + n dt (a scope's sampling, perhaps with leading points
+    clipped to the same first time) n is split as i m + j with m ~ sqrt(N), so
+    e^{lam n dt} = e^{lam (t_0 + i m dt)} e^{lam j dt}: about 2 sqrt(N) exponentials, and
+    the sum over modes becomes one small matrix product per output (each entry within a
+    few roundings of the direct sum). Elsewhere every entry is exponentiated directly.
+    """
+    t = np.asarray(times, dtype=float)
+    n_batch, n_out = lam.shape[0], gain.shape[1]
+    grid = _uniform_grid(t)
+    if grid is None:
+        powers = np.exp(lam[:, None, :] * t[None, :, None])
+        return (np.matmul(powers.real, np.swapaxes(gain.real, 1, 2))
+                - np.matmul(powers.imag, np.swapaxes(gain.imag, 1, 2)))
+    lead, start, dt, size = grid
+    m = int(math.ceil(math.sqrt(size)))
+    rows = -(-size // m)
+    fine = np.exp(lam[:, :, None] * (dt * np.arange(m))[None, None, :])  # (batch, k, m)
+    coarse = np.exp(lam[:, None, :] * (start + dt * m * np.arange(rows))[None, :, None])
+    out = np.empty((n_batch, size, n_out))
+    for q in range(n_out):
+        block = np.matmul(coarse * gain[:, q, None, :], fine).real  # (batch, rows, m)
+        out[:, :, q] = block.reshape(n_batch, rows * m)[:, :size]
+    if lead > 1:
+        out = np.concatenate([np.repeat(out[:, :1], lead - 1, axis=1), out], axis=1)
+    return out
+
+
+#: Fewest time points for which the uniform-grid factorisation pays.
+_UNIFORM_MIN_POINTS = 64
+
+
+def _uniform_grid(t: np.ndarray) -> tuple[int, float, float, int] | None:
+    """(leading repeats of the first time, first time of the uniform part, spacing,
+    its number of points) when ``t`` is a uniform grid after its leading repeats."""
+    if t.size < _UNIFORM_MIN_POINTS:
+        return None
+    lead = int(np.searchsorted(t, t[0], side="right"))
+    tail = t[lead - 1:]
+    if tail.size < _UNIFORM_MIN_POINTS:
+        return None
+    dt = (tail[-1] - tail[0]) / (tail.size - 1)
+    if not dt > 0:
+        return None
+    if np.any(np.abs(tail - (tail[0] + dt * np.arange(tail.size))) > 1e-9 * dt):
+        return None
+    return lead, float(tail[0]), float(dt), int(tail.size)
+
+
+def _one_per_pair(lam: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Column indices that keep one member of each conjugate pair (and every real
+    root), and the factor each kept column counts with (2 for a pair, else 1).
+
+    Rows may differ in how many roots are complex; every row keeps the same number of
+    columns, padded with dropped members at factor 0.
+    """
+    upper = lam.imag > 0
+    lower = lam.imag < 0
+    rank = np.where(upper, 0, np.where(lower, 2, 1))
+    order = np.argsort(rank, axis=1, kind="stable")
+    count = lam.shape[1] - int(np.min(np.sum(lower, axis=1)))
+    keep = order[:, :count]
+    kept_rank = np.take_along_axis(rank, keep, 1)
+    factor = np.where(kept_rank == 0, 2.0, np.where(kept_rank == 1, 1.0, 0.0))
+    return keep, factor
 
 
 def _phi(lam: np.ndarray, s: np.ndarray) -> np.ndarray:
