@@ -198,10 +198,10 @@ def test_derived_circuit_from_trace_recovers_l_and_r() -> None:
 
 
 def test_too_short_record_says_how_much_was_found() -> None:
-    t = time_axis(samples=40)  # one period
+    t = time_axis(samples=40)  # one period: one extremum inside it (at half a period)
     with pytest.raises(
         TraceError,
-        match=r"found about 1\.\d periods of ringing .* at least 1\.5 periods are needed",
+        match=r"found only one extremum .*\(about 1\.\d periods .* at least 1\.5 periods are needed",
     ):
         estimate_ringdown(t, lsim_ringdown(t), source="short.csv")
 

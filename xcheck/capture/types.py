@@ -15,6 +15,7 @@ import numpy as np
 
 from xcheck.capture.clipping import CLIP_RUN
 from xcheck.errors import TraceError
+from xcheck.values import format_eng
 
 __all__ = [
     "CLIP_RUN",
@@ -22,9 +23,13 @@ __all__ = [
     "MAX_PEAK_ROWS",
     "MIN_PEAKS",
     "MIN_SAMPLES",
+    "ADVISED_TIME_CONSTANTS",
+    "MIN_TIME_CONSTANTS",
     "PeakTable",
     "Trace",
+    "check_enough_decay",
     "check_enough_ringing",
+    "decay_shortfall",
 ]
 
 #: Fewest rows a waveform may have.
@@ -141,7 +146,8 @@ def check_enough_ringing(trace: Trace, period_s: float, *, minimum_periods: floa
 
     Call it once the period is known (from the estimate): with fewer than about one and
     a half periods neither the frequency nor the decay can be separated from an offset
-    (common practice, no source).
+    (common practice, no source). A record that does not ring at all has no period;
+    check it with :func:`check_enough_decay` instead.
 
     Parameters
     ----------
@@ -170,3 +176,74 @@ def check_enough_ringing(trace: Trace, period_s: float, *, minimum_periods: floa
                 "decay apart: capture a longer time window (slower time base)"
             ],
         )
+
+
+#: Fewest time constants of its slowest decay a record that does not ring must span.
+MIN_TIME_CONSTANTS = 2.0
+#: Time constants a record that does not ring is advised to span (e^-5 < 1 % left).
+ADVISED_TIME_CONSTANTS = 5.0
+
+
+def decay_shortfall(
+    duration_s: float, time_constant_s: float, *, minimum_time_constants: float = MIN_TIME_CONSTANTS
+) -> str | None:
+    """The problem, in words, of a non-ringing record too short for its decay; else None.
+
+    With fewer than about two time constants the decay is still nearly a straight line
+    and cannot be told from the level it settles at: amplitude, time constant and final
+    level trade off against one another (common practice, no source). The advice is the
+    one that helps such a record: a longer time window, about
+    :data:`ADVISED_TIME_CONSTANTS` time constants.
+
+    Parameters
+    ----------
+    duration_s
+        The record's span from the event (s).
+    time_constant_s
+        The slowest time constant (s), e.g. fitted.
+    minimum_time_constants
+        The shortest acceptable record, in time constants.
+    """
+    if not (time_constant_s > 0 and math.isfinite(time_constant_s)):
+        raise ValueError(f"time_constant_s must be a positive number, got {time_constant_s!r}")
+    spans = duration_s / time_constant_s
+    if spans >= minimum_time_constants:
+        return None
+    advised = ADVISED_TIME_CONSTANTS * time_constant_s
+    return (
+        f"the record does not ring and covers only {spans:.2f} time constants of its "
+        f"slowest decay (time constant about {format_eng(time_constant_s, 's')}) after the "
+        f"event; at least {minimum_time_constants:g} are needed to tell the decay from the level it "
+        "settles at: capture a longer time window (slower time base), about "
+        f"{ADVISED_TIME_CONSTANTS:g} time constants ({format_eng(advised, 's')}) or more"
+    )
+
+
+def check_enough_decay(
+    trace: Trace, time_constant_s: float, *, minimum_time_constants: float = MIN_TIME_CONSTANTS
+) -> None:
+    """Raise unless a record that does not ring spans ``minimum_time_constants`` of its decay.
+
+    The counterpart of :func:`check_enough_ringing` for an overdamped, critically
+    damped or first-order response, which has no period; see :func:`decay_shortfall`.
+
+    Parameters
+    ----------
+    trace
+        The aligned trace (time from the event).
+    time_constant_s
+        The slowest time constant of the decay in seconds.
+    minimum_time_constants
+        The shortest acceptable record, in time constants.
+
+    Raises
+    ------
+    TraceError
+        When the record (from its first sample) is shorter than that.
+    """
+    duration = float(trace.time[-1] - trace.time[0]) if len(trace) else 0.0
+    problem = decay_shortfall(
+        duration, time_constant_s, minimum_time_constants=minimum_time_constants
+    )
+    if problem is not None:
+        raise TraceError(trace.source, [problem])

@@ -8,7 +8,10 @@ and the printing.
 Prints the table (value +- standard error, Cramér-Rao bound) in engineering notation,
 the envelope findings and notes; writes a PNG (the trace with the fitted model; the
 extrema on a logarithmic axis with the fitted envelope, flagged extrema marked) and,
-with ``--json``, the numbers in SI units. Exit status 2 on bad input.
+with ``--json``, the numbers in SI units. A trace that settles without ringing
+(overdamped, critically damped, first order) gets its time constants, omega0 and zeta
+instead, and its own figure (:func:`xcheck.report.aperiodic_figure.aperiodic_figure`).
+Exit status 2 on bad input.
 """
 
 from __future__ import annotations
@@ -29,9 +32,18 @@ from xcheck.atomic import (
     write_text_atomically,
 )
 from xcheck.errors import ValueParseError, XcheckError
+from xcheck.report.aperiodic_figure import aperiodic_figure
 from xcheck.report.figures import ringdown_figure
-from xcheck.ringdown import DerivedCircuit, Estimate, RingdownEstimate, derive_circuit
 from xcheck.report.ringdown_json import ringdown_json
+from xcheck.ringdown import (
+    AperiodicCircuit,
+    AperiodicEstimate,
+    DerivedCircuit,
+    Estimate,
+    RingdownEstimate,
+    derive_aperiodic_circuit,
+    derive_circuit,
+)
 from xcheck.ringdown.from_file import FileRingdown, ringdown_from_file
 from xcheck.values import format_eng, parse_value
 
@@ -43,6 +55,8 @@ DEFAULT_ROOT = Path("reports")
 PNG_NAME = "ringdown.png"
 #: Keys an earlier ``--json`` result holds: only such a file is replaced.
 JSON_KEYS = ("damped_frequency_hz", "neper_frequency_per_s")
+#: The same for the result of a trace that did not ring.
+APERIODIC_JSON_KEYS = ("regime", "time_constants_s")
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -153,12 +167,14 @@ def run(args: argparse.Namespace) -> int:
         event_time=event_time,
         expect=args.expect,
         modes=args.modes,
+        allow_aperiodic=True,
     )
     estimate = result.estimate
-    derived = None
+    derived: DerivedCircuit | AperiodicCircuit | None = None
     if capacitance is not None or inductance is not None:
-        derived = derive_circuit(
-            estimate,
+        derive = derive_aperiodic_circuit if estimate.aperiodic else derive_circuit
+        derived = derive(
+            estimate,  # type: ignore[arg-type]
             capacitance=capacitance,
             inductance=inductance,
             capacitance_stderr=c_err,
@@ -168,10 +184,16 @@ def run(args: argparse.Namespace) -> int:
     refuse_foreign(png, png_is_ours, "--out")
     if args.json is not None:
         refuse_foreign(args.json, _json_is_ours, "--json")
+    figure = aperiodic_figure if estimate.aperiodic else ringdown_figure
     write_file_atomically(
         png,
-        lambda tmp: ringdown_figure(
-            tmp, estimate, result.time, result.voltage, result.excluded, title=str(args.trace)
+        lambda tmp: figure(
+            tmp,
+            estimate,  # type: ignore[arg-type]
+            result.time,
+            result.voltage,
+            result.excluded,
+            title=str(args.trace),
         ),
     )
     written = [png]
@@ -179,13 +201,19 @@ def run(args: argparse.Namespace) -> int:
         text = json.dumps(ringdown_json(result, derived), indent=2, allow_nan=False)
         write_text_atomically(args.json, text + "\n", option="--json")
         written.append(args.json)
-    print(summary_text(estimate, derived, _context_lines(result), written))
+    if isinstance(estimate, AperiodicEstimate):
+        assert derived is None or isinstance(derived, AperiodicCircuit)
+        print(aperiodic_text(estimate, derived, _context_lines(result), written))
+    else:
+        assert derived is None or isinstance(derived, DerivedCircuit)
+        print(summary_text(estimate, derived, _context_lines(result), written))
     return 0
 
 
 def _json_is_ours(path: Path) -> bool:
-    """True when ``path`` holds an earlier ``xcheck ringdown --json`` result."""
-    return json_is_ours(path, keys=JSON_KEYS)
+    """True when ``path`` holds an earlier ``xcheck ringdown --json`` result (of a ringing
+    or a non-ringing trace)."""
+    return json_is_ours(path, keys=JSON_KEYS) or json_is_ours(path, keys=APERIODIC_JSON_KEYS)
 
 
 def _context_lines(result: FileRingdown) -> list[str]:
@@ -295,6 +323,80 @@ def summary_text(
             f"± {format_eng(alt.damped_frequency.stderr, 'Hz', 2)}, alpha "
             f"{format_eng(alt.neper_frequency.value, 'Np/s', 5)} "
             f"± {format_eng(alt.neper_frequency.stderr, 'Np/s', 2)}"
+        )
+    for note in estimate.notes + (derived.notes if derived else ()):
+        lines.append(f"note: {note}")
+    if not estimate.success:
+        lines.append("warning: the fit did not converge cleanly; treat the numbers with doubt")
+    lines.append("wrote " + ", ".join(str(p) for p in written))
+    return "\n".join(lines)
+
+
+def aperiodic_rows(
+    estimate: AperiodicEstimate, derived: AperiodicCircuit | None
+) -> list[list[str]]:
+    """Rows of the printed table of a trace that did not ring (same columns)."""
+    two = len(estimate.time_constants) == 2
+    rows: list[list[str] | None] = []
+    for i, (tau, rate) in enumerate(zip(estimate.time_constants, estimate.decay_rates), 1):
+        which = ("", "") if not two else (f"{i}", " (slow)" if i == 1 else " (fast)")
+        rows.append(_row(f"time constant tau{which[0]}{which[1]}", tau, "s"))
+        rows.append(_row(f"decay rate s{which[0]} = 1/tau{which[0]}", rate, "/s"))
+    rows += [
+        _row("natural frequency omega0", estimate.natural_angular_frequency, "rad/s"),
+        _row("natural frequency f0", estimate.natural_frequency, "Hz"),
+        _row("damping ratio zeta", estimate.damping_ratio, ""),
+        _row("settled level", estimate.settled_level, "V"),
+        _row("initial voltage v(0)", estimate.initial_volts, "V"),
+    ]
+    for i, amp in enumerate(estimate.amplitudes, 1):
+        rows.append(_row(f"amplitude A{i}" if two else "amplitude A", amp, "V"))
+    rows.append(_row("ramp B of (A + B t)", estimate.ramp, "V/s"))
+    if derived is not None:
+        rows += [
+            _row("capacitance C", derived.capacitance, "F"),
+            _row("inductance L", derived.inductance, "H"),
+            _row("series resistance R", derived.resistance, "ohm"),
+        ]
+    return [r for r in rows if r is not None]
+
+
+def aperiodic_text(
+    estimate: AperiodicEstimate,
+    derived: AperiodicCircuit | None,
+    context: list[str],
+    written: list[Path],
+) -> str:
+    """Everything ``xcheck ringdown`` prints for a trace that settles without ringing."""
+    header = ["quantity", "value", "std. error", "CRB"]
+    rows = aperiodic_rows(estimate, derived)
+    widths = [max(len(r[i]) for r in rows + [header]) for i in range(4)]
+    lines = list(context)
+    lines.append(f"method: {estimate.method}")
+    lines.append(
+        f"samples used {estimate.samples_used}, excluded {estimate.samples_excluded}, "
+        f"effective {estimate.effective_samples:.0f}; "
+        f"noise {format_eng(estimate.noise_sigma, 'V')} "
+        f"({estimate.noise_source}); residual rms {format_eng(estimate.residual_rms, 'V')}"
+    )
+    lines.append(
+        f"no ringing: the response is {estimate.regime}; the record spans "
+        f"{estimate.span_time_constants:.1f} time constants of the slowest decay"
+    )
+    lines.append("")
+    lines.append("  ".join(h.ljust(w) for h, w in zip(header, widths)))
+    for r in rows:
+        lines.append("  ".join(c.ljust(w) for c, w in zip(r, widths)))
+    lines.append("(CRB: square root of the Cramér-Rao bound for white noise of the stated level)")
+    lines.append("")
+    scores = ", ".join(
+        f"{name} {value:.1f}" for name, value in estimate.information_criteria.items()
+    )
+    lines.append(f"model selection, BIC (lowest wins among the decays): {scores}")
+    free = estimate.second_order_damping_ratio
+    if free is not None and estimate.regime == "critically damped":
+        lines.append(
+            f"the free second-order fit gives zeta = {free.value:.4g} ± {free.stderr:.2g}"
         )
     for note in estimate.notes + (derived.notes if derived else ()):
         lines.append(f"note: {note}")

@@ -1,5 +1,15 @@
 """The JSON of ``xcheck ringdown --json`` and the alignment record it shares with
-summary.json (one builder for both, so the two files name the same things alike)."""
+summary.json (one builder for both, so the two files name the same things alike).
+
+A ringing trace gives :meth:`xcheck.ringdown.RingdownEstimate.to_json` (``"regime":
+"underdamped"``, ``damped_frequency_hz``, ``neper_frequency_per_s``, ...); a trace that
+settles without ringing gives :meth:`xcheck.ringdown.AperiodicEstimate.to_json`
+(``"regime"`` one of ``"overdamped"``, ``"critically damped"``, ``"first order"``,
+``time_constants_s``, ``decay_rates_per_s``, ``natural_angular_frequency_rad_per_s``,
+``damping_ratio``, ``settled_level_volts``, ``record_span_time_constants``, ``bic``,
+...). Both carry ``"aperiodic"`` (false or true), ``source``, ``alignment`` and, when a
+component was given, ``derived``.
+"""
 
 from __future__ import annotations
 
@@ -7,6 +17,7 @@ import math
 from typing import Any
 
 from xcheck.capture.align import Alignment
+from xcheck.ringdown.aperiodic_derived import AperiodicCircuit
 from xcheck.ringdown.derived import DerivedCircuit
 from xcheck.ringdown.from_file import FileRingdown
 
@@ -23,16 +34,18 @@ def alignment_json(alignment: Alignment) -> dict[str, Any]:
     }
 
 
-def ringdown_json(found: FileRingdown, derived: DerivedCircuit | None = None) -> dict[str, Any]:
-    """One file's ring-down estimate in SI units, JSON-safe (non-finite numbers become
-    null).
+def ringdown_json(
+    found: FileRingdown, derived: DerivedCircuit | AperiodicCircuit | None = None
+) -> dict[str, Any]:
+    """One file's ring-down (or aperiodic) estimate in SI units, JSON-safe (non-finite
+    numbers become null).
 
     Parameters
     ----------
     found
         The file's estimate (:func:`xcheck.ringdown.from_file.ringdown_from_file`).
     derived
-        Series-RLC values implied by the estimate, added as ``"derived"``.
+        Series-circuit values implied by the estimate, added as ``"derived"``.
     """
     data = found.estimate.to_json()
     data["source"] = found.source

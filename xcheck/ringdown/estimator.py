@@ -13,6 +13,12 @@
    all usable samples (Kay 1993, vol. 1, eq. 3.31).
 5. Envelope diagnostics; when isolated extrema are flagged, the fit is repeated without
    the samples around them and both estimates are kept.
+
+A record whose extrema show too little ringing is handed to
+:func:`xcheck.ringdown.aperiodic.analyse_aperiodic`: when it settles without ringing
+(overdamped, critically damped or first order) its time constants are the estimate
+(``allow_aperiodic=True``) or the refusal says so; otherwise the refusal says how much
+ringing was found and what helps.
 """
 
 from __future__ import annotations
@@ -25,10 +31,12 @@ import numpy as np
 
 from xcheck.errors import TraceError
 from xcheck.fitting.stats import covariance_from_jacobian
+from xcheck.ringdown.aperiodic import NOISE_ADVICE, analyse_aperiodic, not_ringing_problem
+from xcheck.ringdown.aperiodic_result import AperiodicEstimate
+from xcheck.ringdown.checks import Shortfall, ringing_shortfall, too_little_ringing, validated
 from xcheck.ringdown.crb import damped_sinusoid_crb
 from xcheck.ringdown.envelope import diagnose_envelope
 from xcheck.ringdown.extrema import (
-    Extrema,
     find_extrema,
     log_decrement,
     noise_from_smoothing,
@@ -37,6 +45,7 @@ from xcheck.ringdown.extrema import (
     sample_step,
 )
 from xcheck.ringdown.nls import (
+    at_least,
     block_means,
     fit_damped,
     linear_amplitudes,
@@ -56,10 +65,7 @@ from xcheck.ringdown.result import (
     gradient,
     wrap_phase,
 )
-from xcheck.values import format_eng
 
-#: Periods of ringing above the noise needed for an estimate.
-MIN_PERIODS = 1.5
 #: Above this many usable samples the fit runs on block means.
 MAX_FIT_SAMPLES = 200_000
 #: Extrema enter the envelope test while the fitted envelope is this many times their
@@ -95,7 +101,8 @@ def estimate_ringdown(
     modes: int = 1,
     resolution: float | None = None,
     source: str = "trace",
-) -> RingdownEstimate:
+    allow_aperiodic: bool = False,
+) -> RingdownEstimate | AperiodicEstimate:
     """Estimate frequency, decay, amplitude and offset of a ring-down trace.
 
     Parameters
@@ -120,22 +127,30 @@ def estimate_ringdown(
         error variance q^2/12 (uniform-error model, common practice) is added.
     source
         Name of the input for error messages.
+    allow_aperiodic
+        True to accept a record that settles without ringing and return its
+        :class:`~xcheck.ringdown.aperiodic_result.AperiodicEstimate`; False (the
+        default, for callers that need a frequency) refuses it with a message that says
+        what it is.
 
     Returns
     -------
-    RingdownEstimate
-        Estimates with standard errors and Cramér-Rao bounds, extrema, diagnostics.
+    RingdownEstimate or AperiodicEstimate
+        Estimates with standard errors and Cramér-Rao bounds, extrema, diagnostics; the
+        aperiodic estimate (``estimate.aperiodic`` is True) only when allowed.
 
     Raises
     ------
     TraceError
-        Malformed arrays, or fewer than about 1.5 periods of ringing above the noise.
+        Malformed arrays; fewer than about 1.5 periods of ringing above the noise (and
+        no aperiodic decay, or one not allowed); a non-ringing record spanning fewer
+        than two time constants of its decay.
     ValueError
         ``modes`` below 1.
     """
     if modes < 1:
         raise ValueError(f"modes must be 1 or more, got {modes}")
-    t, v, keep = _validated(time, voltage, exclude, source)
+    t, v, keep = validated(time, voltage, exclude, source)
     notes: list[str] = []
     step = sample_step(t)
     uniform = bool(np.max(np.abs(np.diff(t) - step)) <= 1e-3 * step)
@@ -157,7 +172,12 @@ def estimate_ringdown(
         sigma0 = math.hypot(sigma0, resolution / math.sqrt(12.0))
     offset0 = float(np.median(v_in))
     first = find_extrema(t, v, period=period0, offset=offset0, noise_sigma=sigma0, keep=keep)
-    _check_length(t, first, freq0, source)
+    short = ringing_shortfall(t, first, freq0)
+    if short is not None:
+        return _not_ringing(
+            t, v, keep, short, given=noise_sigma if given else None, resolution=resolution,
+            notes=notes, source=source, allow=allow_aperiodic,
+        )
     rates_ld = None
     if len(first) >= 2:
         alpha_ld, omega_ld = log_decrement(first.time, first.value - offset0)
@@ -210,79 +230,44 @@ def _pair(with_all: RingdownEstimate, without: RingdownEstimate) -> RingdownEsti
     )
 
 
-def _validated(
-    time: np.ndarray, voltage: np.ndarray, exclude: np.ndarray | None, source: str
-) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Arrays as float, with every problem of the input reported together."""
-    t = np.asarray(time, dtype=float)
-    v = np.asarray(voltage, dtype=float)
-    problems: list[str] = []
-    if t.ndim != 1 or v.ndim != 1 or t.shape != v.shape:
-        raise TraceError(
-            source,
-            [
-                "time and voltage must be 1-D arrays of one length, got shapes "
-                f"{t.shape} and {v.shape}"
-            ],
-        )
-    keep = np.ones(len(t), dtype=bool)
-    if exclude is not None:
-        ex = np.asarray(exclude, dtype=bool)
-        if ex.shape != t.shape:
-            problems.append(
-                f"the exclusion mask has shape {ex.shape}, the trace {t.shape}; "
-                "pass one flag per sample"
-            )
-        else:
-            keep = ~ex
-    bad_t = ~np.isfinite(t)
-    if bad_t.any():
-        problems.append(
-            f"{int(bad_t.sum())} time values are not finite (first at sample "
-            f"{int(np.argmax(bad_t))}); remove or repair them"
-        )
-    bad_v = ~np.isfinite(v) & keep
-    if bad_v.any():
-        problems.append(
-            f"{int(bad_v.sum())} voltage values are not finite (first at sample "
-            f"{int(np.argmax(bad_v))}); remove them or mark them excluded"
-        )
-    if len(t) > 1 and not bad_t.any():
-        d = np.diff(t)
-        if np.any(d <= 0):
-            i = int(np.argmax(d <= 0))
-            problems.append(
-                f"time does not increase at sample {i + 1} ({float(t[i]):.9g} then "
-                f"{float(t[i + 1]):.9g}); times must be strictly increasing"
-            )
-    if int(keep.sum()) < 16:
-        problems.append(
-            f"only {int(keep.sum())} usable samples; a ring-down estimate needs at least 16 "
-            "(and 1.5 periods of ringing)"
-        )
-    if problems:
-        raise TraceError(source, problems)
-    return t, v, keep
-
-
-def _check_length(t: np.ndarray, ext: Extrema, freq: float, source: str) -> None:
-    """TraceError unless about 1.5 periods of ringing rise above the noise."""
-    period = 1.0 / freq
-    end = min(float(t[-1]), float(ext.time[-1]) + period / 2.0) if len(ext) else float(t[0])
-    periods = (end - float(t[0])) * freq
-    if periods >= MIN_PERIODS - 0.05 and len(ext) >= 2:
-        return
-    span = float(t[-1] - t[0])
-    raise TraceError(
-        source,
-        [
-            f"found about {periods:.1f} periods of ringing above the noise ({len(ext)} "
-            f"extrema, strongest frequency about {format_eng(freq, 'Hz')}) in a record of "
-            f"{format_eng(span, 's')}; at least {MIN_PERIODS} periods are needed to estimate "
-            "frequency and decay: capture a longer record (slower timebase), check the "
-            "column and the event time, or read the extrema into a peak table"
-        ],
+def _not_ringing(
+    t: np.ndarray,
+    v: np.ndarray,
+    keep: np.ndarray,
+    short: Shortfall,
+    *,
+    given: float | None,
+    resolution: float | None,
+    notes: list[str],
+    source: str,
+    allow: bool,
+) -> AperiodicEstimate:
+    """The aperiodic estimate of a record with too little ringing, or the right refusal."""
+    outcome = analyse_aperiodic(
+        t, v, keep, noise_sigma=given, resolution=resolution, notes=tuple(notes)
     )
+    if outcome.kind == "noise":
+        problem = too_little_ringing(
+            short,
+            finding="; nor does a decay toward a settled level stand out from the noise"
+            + outcome.problem,
+            advice=NOISE_ADVICE,
+        )
+    elif outcome.kind == "underdamped":
+        problem = too_little_ringing(
+            short,
+            finding=f"; {outcome.problem}: the response rings, but the record shows too "
+            "little of the ringing",
+        )
+    elif outcome.kind == "short":
+        problem = outcome.problem
+    elif allow:
+        assert outcome.estimate is not None
+        return outcome.estimate
+    else:
+        assert outcome.estimate is not None
+        problem = not_ringing_problem(outcome.estimate)
+    raise TraceError(source, [problem])
 
 
 def _pencil_rates(
@@ -412,7 +397,7 @@ def _fit(
     else:
         sigma, sigma_fit, noise_source = s_sample, s_fit, "fit residuals"
     naive = sigma_fit**2 * covariance_from_jacobian(jac_fit)
-    cov_fit = _at_least(sandwich_covariance(jac_fit, rho, sigma_fit), naive)
+    cov_fit = at_least(sandwich_covariance(jac_fit, rho, sigma_fit), naive)
     if n_eff_fit < 0.95 * len(tf):
         widen = np.sqrt(np.diag(cov_fit) / np.diag(naive))
         notes.append(
@@ -442,19 +427,6 @@ def _fit(
         success=bool(fit.success and plausible),
         notes=tuple(notes),
     )
-
-
-def _at_least(cov: np.ndarray, floor: np.ndarray) -> np.ndarray:
-    """``cov`` with each variance raised to at least that of ``floor`` (correlations kept).
-
-    Correlated noise is never allowed to make a standard error smaller than white noise
-    of the same per-sample level would (a conservative choice, common practice).
-    """
-    d_cov, d_floor = np.diag(cov), np.diag(floor)
-    scale = np.sqrt(
-        np.where(d_cov > 0, np.maximum(d_floor / np.where(d_cov > 0, d_cov, 1.0), 1.0), 1.0)
-    )
-    return cov * np.outer(scale, scale)
 
 
 def _padded(

@@ -3,7 +3,9 @@
 A waveform file is read (:func:`xcheck.capture.scope_csv.read_trace`), the event found
 and the time axis moved to it (:func:`xcheck.capture.align.align_trace`), clipped samples
 left out, and the ring-down estimated (:func:`xcheck.ringdown.estimate_ringdown`) with
-the pre-event noise as the noise level. A table of extrema read off cursors is read with
+the pre-event noise as the noise level; with ``allow_aperiodic`` a trace that settles
+without ringing gives an :class:`~xcheck.ringdown.aperiodic_result.AperiodicEstimate`.
+A table of extrema read off cursors is read with
 :func:`xcheck.capture.peak_table.read_peaks` and estimated with
 :func:`xcheck.ringdown.estimate_from_peaks`.
 
@@ -21,6 +23,7 @@ import numpy as np
 from xcheck.capture.align import Alignment, align_trace
 from xcheck.capture.peak_table import read_peaks
 from xcheck.capture.scope_csv import read_trace
+from xcheck.ringdown.aperiodic_result import AperiodicEstimate
 from xcheck.ringdown.estimator import estimate_ringdown
 from xcheck.ringdown.peaks import estimate_from_peaks
 from xcheck.ringdown.result import RingdownEstimate
@@ -35,7 +38,8 @@ class FileRingdown:
     source
         The file as given.
     estimate
-        The ring-down estimate.
+        The ring-down estimate, or the aperiodic one (``estimate.aperiodic`` True) of a
+        trace that settles without ringing when that was allowed.
     time, voltage
         Samples from the event (s, V), or a peak table's readings as written.
     excluded
@@ -54,7 +58,7 @@ class FileRingdown:
     """
 
     source: str
-    estimate: RingdownEstimate
+    estimate: RingdownEstimate | AperiodicEstimate
     time: np.ndarray
     voltage: np.ndarray
     excluded: np.ndarray | None
@@ -80,6 +84,7 @@ def ringdown_from_file(
     expect: str = "natural",
     expected_sign: int | None = None,
     modes: int = 1,
+    allow_aperiodic: bool = False,
 ) -> FileRingdown:
     """Read ``path``, align it and estimate its ring-down.
 
@@ -101,6 +106,10 @@ def ringdown_from_file(
         the other sign is reported as an inverted probe. None: either.
     modes
         Damped sinusoids to fit.
+    allow_aperiodic
+        True to accept a trace that settles without ringing (overdamped, critically
+        damped, first order) and estimate its time constants; False refuses it with a
+        message saying what it is. Peak tables always ring.
 
     Returns
     -------
@@ -132,6 +141,7 @@ def ringdown_from_file(
         modes=modes,
         resolution=trace.resolution,
         source=trace.source,
+        allow_aperiodic=allow_aperiodic,
     )
     return FileRingdown(str(path), estimate, np.asarray(aligned.time),
                         np.asarray(aligned.voltage), np.asarray(aligned.clipped), alignment,

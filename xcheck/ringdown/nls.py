@@ -206,6 +206,19 @@ def sandwich_covariance(jacobian: np.ndarray, rho: np.ndarray, sigma: float) -> 
     return sigma**2 * bread @ meat @ bread
 
 
+def at_least(cov: np.ndarray, floor: np.ndarray) -> np.ndarray:
+    """``cov`` with each variance raised to at least that of ``floor`` (correlations kept).
+
+    Correlated noise is never allowed to make a standard error smaller than white noise
+    of the same per-sample level would (a conservative choice, common practice).
+    """
+    d_cov, d_floor = np.diag(cov), np.diag(floor)
+    scale = np.sqrt(
+        np.where(d_cov > 0, np.maximum(d_floor / np.where(d_cov > 0, d_cov, 1.0), 1.0), 1.0)
+    )
+    return cov * np.outer(scale, scale)
+
+
 def block_means(
     time: np.ndarray, voltage: np.ndarray, keep: np.ndarray, size: int
 ) -> tuple[np.ndarray, np.ndarray]:

@@ -204,6 +204,16 @@ class RingdownEstimate:
     parameter_names: tuple[str, ...] = field(default=PARAMETER_NAMES)
 
     @property
+    def regime(self) -> str:
+        """``"underdamped"``: the record rings (an aperiodic estimate names its own regime)."""
+        return "underdamped"
+
+    @property
+    def aperiodic(self) -> bool:
+        """False: a ringing estimate (an ``AperiodicEstimate`` says True)."""
+        return False
+
+    @property
     def envelope_exponential(self) -> bool:
         """True when the extrema decay as one exponential (see :class:`EnvelopeDiagnostics`)."""
         return self.envelope.exponential
@@ -233,6 +243,8 @@ class RingdownEstimate:
     def to_json(self) -> dict[str, object]:
         """Machine-readable form, SI units (keys carry the unit)."""
         data: dict[str, object] = {
+            "regime": self.regime,
+            "aperiodic": False,
             "damped_frequency_hz": self.damped_frequency.to_json(),
             "neper_frequency_per_s": self.neper_frequency.to_json(),
             "angular_frequency_rad_per_s": self.angular_frequency.to_json(),
@@ -264,7 +276,8 @@ class RingdownEstimate:
             data["extra_modes"] = [mode.to_json() for mode in self.extra_modes]
         if self.alternate is not None:
             alt = self.alternate.to_json()
-            for key in ("alternate", "extrema", "envelope", "covariance", "parameter_names"):
+            for key in ("alternate", "extrema", "envelope", "covariance", "parameter_names",
+                        "regime", "aperiodic"):
                 alt.pop(key, None)
             data["alternate"] = alt
         return data
