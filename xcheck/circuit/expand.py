@@ -1,11 +1,13 @@
 """Fixture to circuit: expanding a fixture and one parameter set into primitive elements.
 
-This module owns :func:`build_circuit` and :func:`parameter_problems` and the elements
-inserted where the loop closes. How each part kind is laid out (its series elements,
-the elements across it, what it becomes when none is left) and how each value is
-bounded are read from the kind's row in :mod:`xcheck.fixture.schema`; this module
-keeps no per-kind table. The data types, naming helpers and topology checks it uses
-live in :mod:`xcheck.circuit.model`.
+This module owns :func:`build_circuit` and :func:`parameter_problems` and, for the loop
+form, the elements inserted where the loop closes. How each part kind is laid out (its
+series elements, the elements across it, what it becomes when none is left) and how
+each value is bounded are read from the kind's row in :mod:`xcheck.fixture.schema`;
+this module keeps no per-kind table. The layout of one part is shared with the node
+form (:mod:`xcheck.circuit.layout`); a node-wired fixture is built by
+:mod:`xcheck.circuit.nodes`. The data types, naming helpers and topology checks live
+in :mod:`xcheck.circuit.model`.
 
 :func:`build_circuit` expands each part of a fixture into primitive elements in series
 between the part's two nodes (internal nodes are named from the part, ``C1_a``). The
@@ -26,7 +28,10 @@ Where the loop closes (at ground, before the first part) it inserts, in loop ord
 step source (negative terminal on ground, positive towards the first part) and its
 source resistance, the lumped extra loop resistance and inductance when a parameter set
 carries them, and a 0 V current-sense source ``V_sense`` when no ideal switch already
-senses the loop current. Probe loading sits across the probed part's two nodes.
+senses the loop current. Probe loading sits across the probed part's two nodes. A
+current probe (``probe = { current = "L1" }``) puts a 0 V source ``V_probe_L1`` in series
+with the probed part, at its first terminal, and names it in
+:attr:`~xcheck.circuit.model.Circuit.probe_current`.
 
 A bare wire joins its nodes rather than becoming a 0 V source: it then adds no element
 and no equation, cannot form a loop of voltage sources with an ideal switch or the step
@@ -44,27 +49,30 @@ t = 0.
 from __future__ import annotations
 
 import math
-from collections.abc import Callable
-from dataclasses import dataclass, field, replace
 from typing import TYPE_CHECKING
 
-from networkx.utils import UnionFind
-
+from xcheck.circuit.layout import (
+    _representatives,
+    _renamed,
+    _series_specs,
+    _Work,
+    add_probe_loading,
+    expand_part,
+    insert_current_probe,
+)
 from xcheck.circuit.model import (
     GROUND,
     RESERVED_NODE_NAMES,
     Circuit,
-    Element,
     UniqueNames,
     check_topology,
     spice_identifier,
 )
+from xcheck.circuit.nodes import build_node_circuit
 from xcheck.errors import FixtureError
 from xcheck.circuit.parameters import (
     LOOP_EXTRA_INDUCTANCE,
     LOOP_EXTRA_RESISTANCE,
-    PROBE_CAPACITANCE,
-    PROBE_RESISTANCE,
     STEP_SOURCE_RESISTANCE,
     STEP_VOLTS,
     ParameterSet,
@@ -73,13 +81,12 @@ from xcheck.circuit.parameters import (
 from xcheck.fixture.schema import (
     PART_KINDS,
     PSEUDO_PARTS,
-    UNIT_LETTER,
     ParameterKey,
     key_label,
 )
 
 if TYPE_CHECKING:  # pragma: no cover - import for type hints only
-    from xcheck.fixture.model import Fixture, Part
+    from xcheck.fixture.model import Fixture
 
 
 # --------------------------------------------------------------------------------------
@@ -105,6 +112,10 @@ def _bound_of(fixture: Fixture, key: ParameterKey) -> str | None:
     belongs to nothing."""
     if key[0] in fixture.parts and key[0] not in fixture.loop:
         return None
+    if key[0] in fixture.parts and fixture.parts[key[0]].source is not None:
+        return None  # a source's values are the fixture's, never a parameter set's
+    if key[0] == STEP_VOLTS[0] and fixture.wiring == "nodes":
+        return None  # node wiring has no [step]: its sources are parts
     spec = fixture.field_spec(key)
     return None if spec is None else spec.bound
 
@@ -140,12 +151,18 @@ def parameter_problems(fixture: Fixture, parameters: ParameterSet) -> list[str]:
                 "rename the part"
             )
     for key in missing_values(fixture, parameters):
+        if key == STEP_VOLTS and fixture.wiring == "nodes":
+            continue  # a node-wired step response's sources are parts, not [step]
         problems.append(_missing_text(fixture, key))
     for key, value in parameters.values.items():
         bound = _bound_of(fixture, key)
         if bound is None:
             known = _fields_of(fixture, key[0])
-            if known:
+            if key[0] in fixture.parts and fixture.parts[key[0]].source is not None:
+                hint = f"{key[0]} is a source; its values are the fixture's excitation"
+            elif key[0] == STEP_VOLTS[0] and fixture.wiring == "nodes":
+                hint = "node wiring has no [step]; its sources are parts"
+            elif known:
                 hint = f"{key[0]} takes {', '.join(known)}"
             else:
                 hint = "parts in the loop: " + ", ".join(fixture.loop)
@@ -194,72 +211,6 @@ def _loop_initial_current(fixture: Fixture) -> tuple[float, list[str]]:
 # --------------------------------------------------------------------------------------
 
 
-@dataclass
-class _Work:
-    """Mutable state of one build: names, elements, node merges."""
-
-    nodes: UniqueNames
-    names: UniqueNames
-    loop: list[Element] = field(default_factory=list)
-    across: list[Element] = field(default_factory=list)
-    merges: UnionFind = field(default_factory=UnionFind)
-    order: dict[str, int] = field(default_factory=dict)
-    sense: str | None = None
-
-    def node(self, base: str) -> str:
-        name = self.nodes.take(base)
-        self.order[name] = len(self.order)
-        return name
-
-    def add(self, kind: str, base: str, a: str, b: str, value: float, **info: object) -> Element:
-        element = Element(self.names.take(base), kind, (a, b), float(value), **info)  # type: ignore[arg-type]
-        (self.loop if element.in_loop else self.across).append(element)
-        return element
-
-
-@dataclass(frozen=True)
-class _Spec:
-    """One series element of a part: its layout slot, value, origin and initial state."""
-
-    role: str
-    letter: str
-    tagged: bool
-    value: float
-    origin: str
-    initial: float | None
-
-
-def _series_specs(part: Part, parameters: ParameterSet, current: float) -> list[_Spec]:
-    """The series elements of a part (its row's layout), those with a value only."""
-    specs = []
-    for slot in PART_KINDS[part.kind].series:
-        key = (part.name, slot.role)
-        value = parameters.get(key)
-        if value is None or value == 0:
-            continue
-        initial: float | None = None
-        if slot.letter == "C":
-            initial = float(part.initial or 0.0)
-        elif slot.letter == "L":
-            initial = current
-        specs.append(
-            _Spec(slot.role, slot.letter, slot.tagged, value,
-                  parameters.origins.get(key, ""), initial)
-        )
-    return specs
-
-
-def _voltage_at_zero(specs: list[_Spec], current: float) -> float:
-    """Voltage across a run of series elements at t = 0: the loop current through its
-    resistances plus its capacitors' initial voltages (inductances taken as 0 V, so that
-    a capacitance across them starts without a jump)."""
-    voltage = current * sum(s.value for s in specs if s.letter == "R")
-    for spec in specs:
-        if spec.letter == "C":
-            voltage += spec.initial or 0.0
-    return voltage
-
-
 def build_circuit(fixture: Fixture, parameters: ParameterSet) -> Circuit:
     """Expand a fixture and one parameter set into primitive elements.
 
@@ -291,6 +242,10 @@ def build_circuit(fixture: Fixture, parameters: ParameterSet) -> Circuit:
     """
     source = str(fixture.source) if fixture.source is not None else fixture.name
     problems = parameter_problems(fixture, parameters)
+    if fixture.wiring == "nodes":
+        if problems:
+            raise FixtureError(source, problems)
+        return build_node_circuit(fixture, parameters, source)
     current, more = _loop_initial_current(fixture)
     problems += more
     if problems:
@@ -312,46 +267,27 @@ def build_circuit(fixture: Fixture, parameters: ParameterSet) -> Circuit:
     )
     chain_end = _closing_chain(fixture, parameters, work, current, not has_ideal_switch)
     sense = work.sense
+    probe_current = None
     spans: dict[str, tuple[str, str]] = {}
     at_zero: dict[str, float] = {}
     closed = False
     for name, first, second in connections:
         part = fixture.parts[name]
-        row = PART_KINDS[part.kind]
         a, b = node_map[first], node_map[second]
         if not closed and first == GROUND:
             a, closed = chain_end, True
+        if fixture.probe_kind == "current" and name == fixture.probe:
+            probe_current, a = insert_current_probe(work, name, a)
         spans[name] = (a, b)
-        ident = spice_identifier(name, "p")
-        specs = _series_specs(part, parameters, current)
-        at_zero[name] = _voltage_at_zero(specs, current)
-        if not specs and row.ideal is not None:  # e.g. a switch without resistance
-            element = work.add(
-                "V", f"V_{ident}", a, b, 0.0, part=name, role=row.ideal.role,
-                origin=row.ideal.origin,
-            )
-            sense = sense or element.name
-            continue
-        if not specs:  # e.g. a wire with neither resistance nor inductance
-            work.merges.union(a, b)
-            continue
-        inner = [work.node(f"{ident}_{chr(ord('a') + k)}") for k in range(len(specs) - 1)]
-        ends = [a, *inner, b]
-        own: tuple[Element, _Spec] | None = None
-        for k, spec in enumerate(specs):
-            base = f"{spec.letter}_{ident}_{spec.role}" if spec.tagged else f"{spec.letter}_{ident}"
-            element = work.add(
-                spec.letter, base, ends[k], ends[k + 1], spec.value,
-                initial=spec.initial, part=name, role=spec.role, origin=spec.origin,
-            )
-            if spec.role == "value":
-                own = (element, spec)
-        _across(part, parameters, work, (a, b), at_zero[name], own, current)
+        at_zero[name], ideal = expand_part(work, part, parameters, a, b, current)
+        sense = sense or ideal
 
-    _probe_loading(fixture, parameters, work, spans, at_zero)
+    assert fixture.probe is not None  # the loop form probes a part
+    if fixture.probe_kind != "current":
+        add_probe_loading(work, parameters, spans[fixture.probe], at_zero[fixture.probe])
     rep = _representatives(work)
     probe = tuple(rep(n) for n in spans[fixture.probe])
-    if probe[0] == probe[1]:
+    if probe[0] == probe[1] and fixture.probe_kind != "current":
         raise FixtureError(
             source,
             [
@@ -368,6 +304,7 @@ def build_circuit(fixture: Fixture, parameters: ParameterSet) -> Circuit:
         response=fixture.response,
         current_sense=sense,
         source=source,
+        probe_current=probe_current,
     )
     check_topology(circuit)
     return circuit
@@ -386,7 +323,7 @@ def _closing_chain(
         plus = work.node("step_p")
         work.add(
             "V", "V_step", plus, node, parameters.values[STEP_VOLTS], part="step",
-            role="volts", origin=parameters.origins.get(STEP_VOLTS, ""),
+            role="volts", origin=parameters.origins.get(STEP_VOLTS, ""), timing="step",
         )
         node = plus
     extras = (
@@ -415,73 +352,3 @@ def _closing_chain(
         ).name
         node = following
     return node
-
-
-def _across(
-    part: Part,
-    parameters: ParameterSet,
-    work: _Work,
-    span: tuple[str, str],
-    span_v0: float,
-    own: tuple[Element, _Spec] | None,
-    current: float,
-) -> None:
-    """The part's parallel elements (its row's ``parallel``), in row order: each across
-    the part's own element (a capacitor's leakage across the ideal capacitance) or the
-    whole part (an inductor's self-capacitance). A capacitance starts at the voltage
-    across what it bridges, so that nothing jumps at t = 0."""
-    row = PART_KINDS[part.kind]
-    for role, across in row.parallel.items():
-        key = (part.name, role)
-        value = parameters.get(key)
-        if not value:
-            continue
-        if across == "value":
-            if own is None:
-                continue
-            nodes, v0 = own[0].nodes, _voltage_at_zero([own[1]], current)
-        else:
-            nodes, v0 = span, span_v0
-        letter = UNIT_LETTER[row.fields[role].unit]
-        work.add(
-            letter, f"{letter}_{spice_identifier(part.name, 'p')}_{role}", *nodes, value,
-            initial=v0 if letter == "C" else None, part=part.name, role=role,
-            origin=parameters.origins.get(key, ""), in_loop=False,
-        )
-
-
-def _probe_loading(
-    fixture: Fixture,
-    parameters: ParameterSet,
-    work: _Work,
-    spans: dict[str, tuple[str, str]],
-    at_zero: dict[str, float],
-) -> None:
-    """Probe resistance and capacitance across the probed part's two nodes."""
-    span = spans[fixture.probe]
-    v0 = at_zero[fixture.probe]
-    for key, letter in ((PROBE_RESISTANCE, "R"), (PROBE_CAPACITANCE, "C")):
-        value = parameters.get(key)
-        if value:
-            work.add(
-                letter, f"{letter}_probe", *span, value, part="probe", role=key[1],
-                origin=parameters.origins.get(key, ""), in_loop=False,
-                initial=v0 if letter == "C" else None,
-            )
-
-
-def _representatives(work: _Work) -> Callable[[str], str]:
-    """Node -> the node it is merged into (ground first, else the earliest named)."""
-    groups: dict[str, str] = {}
-    for group in work.merges.to_sets():
-        best = min(group, key=lambda n: (n != GROUND, work.order.get(n, 1 << 30)))
-        for node in group:
-            groups[node] = best
-    return lambda node: groups.get(node, node)
-
-
-def _renamed(element: Element, rep: Callable[[str], str]) -> Element:
-    nodes = (rep(element.nodes[0]), rep(element.nodes[1]))
-    if nodes == element.nodes:
-        return element
-    return replace(element, nodes=nodes)

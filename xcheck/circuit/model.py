@@ -1,17 +1,17 @@
 """Primitive element graph shared by every engine.
 
 A :class:`Circuit` is what both the SPICE deck and closed-form theory consume, so the
-two always describe the same physics. Elements are R, L, C, V (independent DC source,
-also used at 0 V as an ideal switch and current sense) between named nodes; ground is
-``"0"``.
+two always describe the same physics. Elements are R, L, C, V (independent voltage
+source, also used at 0 V as an ideal switch, a loop current sense and a current probe)
+and I (independent current source) between named nodes; ground is ``"0"``.
 
 This module owns the data types (:class:`Element`, :class:`Circuit`), the naming
 helpers shared with the deck writer (:func:`spice_identifier`, :class:`UniqueNames`),
 the graph view (:func:`circuit_graph`) and the topology checks
 (:func:`topology_problems`, :func:`check_topology`). Expanding a fixture into a circuit
 (:func:`~xcheck.circuit.expand.build_circuit`, :func:`~xcheck.circuit.expand.parameter_problems`, the
-series layouts) lives in :mod:`xcheck.circuit.expand`; those names are still reachable from
-here, resolved on first use.
+series layouts) lives in :mod:`xcheck.circuit.expand`, :mod:`xcheck.circuit.layout` and
+:mod:`xcheck.circuit.nodes`.
 """
 
 from __future__ import annotations
@@ -254,22 +254,29 @@ def topology_problems(circuit: Circuit) -> list[str]:
     The transient analysis runs with ``uic`` (no DC operating point), so a node
     reached only through capacitors, or a cut-set of inductors, is solvable: each
     capacitor and inductor becomes a finite companion conductance at every time step.
-    What remains singular or meaningless, and is checked here:
+    What remains singular or meaningless, and is checked here, each problem naming
+    the fixture parts involved (:attr:`Element.part`) and how to fix it:
 
     - no elements, or no ground node;
     - a part of the circuit not connected to ground (its voltages are undefined);
     - a node with fewer than two element terminals (a dangling element carries no
       current and usually means a wiring mistake);
-    - an element with both terminals on one node;
+    - an element with both terminals on one node (its part shorted by its own wiring);
     - a loop made only of voltage sources (two sources fixing one voltage: the MNA
       matrix is singular);
+    - a loop made only of capacitors and voltage sources, with at least one of each
+      (0 V sources included: an ideal switch, a current sense or probe): the
+      capacitors' voltages are tied to the sources', and their charge would move in no
+      time when a source switches;
+    - a cut set made only of inductors and current sources, with at least one current
+      source (a current source with no path but through inductors and other current
+      sources): the inductor currents are tied to the source's and would jump when it
+      switches;
     - element names that are not unique ignoring case (SPICE folds case), do not
       start with their SPICE letter or contain other than letters, digits and ``_``;
     - values that are not finite, or zero, or a negative capacitance or inductance;
-    - a probe node or current-sense source that is not in the circuit.
-
-    There are no current sources among the primitives, so no cut-set of
-    current-defined elements can occur.
+    - a probe node, current-sense source or current-probe source that is not in the
+      circuit.
 
     Returns
     -------
@@ -295,7 +302,11 @@ def topology_problems(circuit: Circuit) -> list[str]:
             )
         seen.setdefault(name.lower(), name)
         if element.nodes[0] == element.nodes[1]:
-            problems.append(f"{name} has both terminals on node {element.nodes[0]!r}")
+            problems.append(
+                f"{name} has both terminals on node {element.nodes[0]!r}"
+                f"{_of_parts([element])}, so it is shorted by its own wiring; connect its "
+                "second terminal to another node"
+            )
         value = element.value
         if not math.isfinite(value):
             problems.append(f"{name} has the value {value!r}; expected a finite number")
@@ -306,40 +317,130 @@ def topology_problems(circuit: Circuit) -> list[str]:
         if element.initial is not None and not math.isfinite(element.initial):
             problems.append(f"{name} has the initial condition {element.initial!r}")
     if circuit.ground not in graph:
-        problems.append(f"no element touches the ground node {circuit.ground!r}")
+        problems.append(
+            f"no element touches the ground node {circuit.ground!r}: connect the reference "
+            "terminal of one part to ground"
+        )
     else:
         for component in nx.connected_components(graph):
             if circuit.ground not in component:
+                members = [d["element"] for _, _, d in graph.edges(component, data=True)]
                 problems.append(
                     "nodes " + ", ".join(sorted(component)) + " are not connected to ground"
+                    f"{_of_parts(members)}; connect them to the rest of the circuit or "
+                    "remove them"
                 )
     for node in graph.nodes:
         if graph.degree(node) < 2:
+            members = [d["element"] for _, _, d in graph.edges(node, data=True)]
             problems.append(
                 f"node {node!r} has only one element terminal "
                 f"({', '.join(k for _, _, k in graph.edges(node, keys=True))}): it floats"
+                f"{_of_parts(members)}; connect another part to it"
             )
-    sources = UnionFind()
-    for element in circuit.elements:
-        if element.kind == "V" and element.nodes[0] != element.nodes[1]:
-            a, b = element.nodes
-            if sources[a] == sources[b]:
-                problems.append(
-                    f"{element.name} closes a loop made only of voltage sources "
-                    "(the simulation would be singular)"
-                )
-            sources.union(a, b)
+    problems += _source_loops(circuit)
+    problems += _current_source_cuts(circuit)
     for node in circuit.probe:
         if node not in graph:
             problems.append(f"the probe node {node!r} is not in the circuit")
+    names = {e.name: e for e in circuit.elements}
     if circuit.current_sense is not None:
-        names = {e.name: e for e in circuit.elements}
         sense = names.get(circuit.current_sense)
         if sense is None or sense.kind != "V":
             problems.append(
                 f"the current sense {circuit.current_sense!r} is not a voltage source "
                 "of the circuit"
             )
+    if circuit.probe_current is not None:
+        meter = names.get(circuit.probe_current)
+        if meter is None or meter.kind != "V" or meter.value != 0:
+            problems.append(
+                f"the current probe {circuit.probe_current!r} is not a 0 V source of the "
+                "circuit"
+            )
+    return problems
+
+
+def _of_parts(elements: list[Element]) -> str:
+    """`` (part C1)`` / `` (parts C1 and V1)`` for the fixture parts of ``elements``."""
+    names = list(dict.fromkeys(e.part for e in elements if e.part))
+    if not names:
+        return ""
+    listed = names[0] if len(names) == 1 else ", ".join(names[:-1]) + " and " + names[-1]
+    return f" ({'part' if len(names) == 1 else 'parts'} {listed})"
+
+
+def _source_loops(circuit: Circuit) -> list[str]:
+    """Loops of only voltage sources, and of only capacitors and voltage sources."""
+    problems: list[str] = []
+    sources = UnionFind()
+    for element in circuit.elements:
+        if element.kind == "V" and element.nodes[0] != element.nodes[1]:
+            a, b = element.nodes
+            if sources[a] == sources[b]:
+                problems.append(
+                    f"{element.name} closes a loop made only of voltage sources"
+                    f"{_of_parts([element])} (the simulation would be singular); put a "
+                    "resistance in series with one of them (source_resistance) or remove one"
+                )
+            sources.union(a, b)
+    reported: set[frozenset[str]] = set()
+    for element in circuit.elements:
+        if element.kind != "V" or element.nodes[0] == element.nodes[1]:
+            continue
+        others = nx.MultiGraph()
+        for other in circuit.elements:
+            if other.kind in ("C", "V") and other is not element:
+                others.add_edge(*other.nodes, key=other.name, element=other)
+        a, b = element.nodes
+        if a not in others or b not in others or not nx.has_path(others, a, b):
+            continue
+        path = nx.shortest_path(others, a, b)
+        members = [element] + [
+            min((d["element"] for d in others[h][t].values()), key=lambda e: (e.kind != "C", e.name))
+            for h, t in zip(path[:-1], path[1:])
+        ]
+        if all(m.kind == "V" for m in members):
+            continue  # a loop of sources alone, reported above
+        key = frozenset(m.name for m in members)
+        if key in reported:
+            continue
+        reported.add(key)
+        problems.append(
+            f"{', '.join(m.name for m in members)} form a loop made only of capacitors and "
+            f"voltage sources{_of_parts(members)}: the capacitors' voltages are tied to the "
+            "sources' and their charge would move in no time when a source switches; put a "
+            "resistance in the loop (a source_resistance, or a capacitor's esr)"
+        )
+    return problems
+
+
+def _current_source_cuts(circuit: Circuit) -> list[str]:
+    """Current sources whose current has no path but through inductors and current
+    sources (a cut set of only those)."""
+    joined = UnionFind(circuit.nodes)
+    for element in circuit.elements:
+        if element.kind not in ("L", "I"):
+            joined.union(*element.nodes)
+    problems = []
+    for element in circuit.elements:
+        if element.kind != "I":
+            continue
+        side = joined[element.nodes[0]]
+        if side == joined[element.nodes[1]]:
+            continue
+        cut = [
+            e for e in circuit.elements
+            if (joined[e.nodes[0]] == side) != (joined[e.nodes[1]] == side)
+        ]
+        problems.append(
+            f"{element.name} has no path for its current but through "
+            f"{', '.join(e.name for e in cut if e is not element) or 'nothing'}, a cut set "
+            f"made only of inductors and current sources{_of_parts(cut)}: the inductor "
+            "currents would be tied to the source's and jump when it switches; put a "
+            "resistor or capacitor across the current source (its output resistance) or "
+            "across the inductor"
+        )
     return problems
 
 

@@ -14,6 +14,24 @@ The deck is the source of truth for the ngspice engine (it is loaded as text wit
     .tran STEP STOP 0 MAXSTEP uic
     .end
 
+Sources. A source on from t = 0 (``timing`` ``"dc"``, or a step with ``t_on = 0``) is
+a DC value: under ``uic`` it holds that value from the first point on, while the
+capacitors and inductors start at their ``ic=``. A delayed step or a pulse is
+``PULSE(0 V td tr tf pw)`` (a pulse on from t = 0 is ``PULSE(V 0 ...)``, on at the
+first point like a DC value, then falling), with rise and fall times of
+:data:`EDGE_FRACTION` of the shortest natural period, each edge centred on its
+switching time; a header line says so. Current sources (``I``) follow SPICE's sign: the
+current flows from the first node through the source to the second.
+
+Initial state. Each capacitor's and inductor's ``ic=`` is its ``initial`` (0 when None),
+or, when the circuit :attr:`~xcheck.circuit.model.Circuit.starts_settled`, the DC
+operating point of its ``"dc"`` sources from
+:func:`xcheck.engines.statespace.initial_conditions` (a header line says so).
+
+Probe. A voltage probe is ``v(plus) - v(minus)``; with a current probe
+(:attr:`~xcheck.circuit.model.Circuit.probe_current`) the probed signal is that 0 V
+source's branch current (``v_probe_l1#branch``), first node through it to the second.
+
 Values are written in plain exponent form with the shortest digits that read back as
 the same double (``4.7e-05``), never with SPICE suffixes (in SPICE ``M`` is milli).
 Comments after an element use ``;``, which ngspice 39 strips as an end-of-line comment
@@ -37,6 +55,8 @@ from decimal import ROUND_CEILING, ROUND_FLOOR, Decimal
 from types import MappingProxyType
 from typing import Mapping
 
+import numpy as np
+
 from xcheck import __version__
 from xcheck.circuit.model import (
     GROUND,
@@ -46,6 +66,7 @@ from xcheck.circuit.model import (
     UniqueNames,
     spice_identifier,
 )
+from xcheck.engines.statespace import initial_conditions, natural_frequencies
 from xcheck.engines.timing import TransientSettings, transient_settings
 from xcheck.fixture.schema import PSEUDO_PARTS, comment_word
 
@@ -68,6 +89,12 @@ STOP_DIGITS = 4
 #: Longest free-text fragment kept in a comment.
 MAX_TEXT = 100
 
+#: Rise and fall time of a switched source, as a fraction of the circuit's shortest
+#: natural period 2 pi / max |s_k|: an edge this fast shifts the response by far less
+#: than the 1e-4 accuracy target, and each edge is centred on its switching time, so
+#: the first-order shift cancels.
+EDGE_FRACTION = 1e-5
+
 #: Symbols engineers write in titles, spelt in ASCII (after NFKD decomposition, which
 #: already turns the micro sign into Greek mu and the ohm sign into Greek omega).
 _TRANSLITERATE = {"\u03bc": "u", "\u03a9": "ohm", "\u00b1": "+-", "\u00b0": "deg",
@@ -77,7 +104,9 @@ _OPTION_NAME = re.compile(r"[a-z][a-z0-9_]*")
 #: The quantity of each element letter, which names a part's own element ("value") in
 #: its comment. Every other role's words come from the schema rows
 #: (:func:`xcheck.fixture.schema.comment_word`).
-_KIND_WORD = {"R": "resistance", "L": "inductance", "C": "capacitance", "V": "voltage"}
+_KIND_WORD = {
+    "R": "resistance", "L": "inductance", "C": "capacitance", "V": "voltage", "I": "current",
+}
 
 
 def safe_text(text: object, limit: int = MAX_TEXT) -> str:
@@ -185,12 +214,15 @@ class DeckNames:
         The probe's (plus, minus) deck nodes.
     current_sense
         Deck name of the loop current-sense source, or None.
+    probe_current
+        Deck name of the current probe's 0 V source, or None for a voltage probe.
     """
 
     nodes: Mapping[str, str]
     elements: Mapping[str, str]
     probe: tuple[str, str]
     current_sense: str | None
+    probe_current: str | None = None
 
     @property
     def current_vector(self) -> str | None:
@@ -198,6 +230,14 @@ class DeckNames:
         if self.current_sense is None:
             return None
         return f"{self.current_sense.lower()}#branch"
+
+    @property
+    def probe_current_vector(self) -> str | None:
+        """ngspice's vector name for the probed current (``v_probe_l1#branch``), or
+        None for a voltage probe."""
+        if self.probe_current is None:
+            return None
+        return f"{self.probe_current.lower()}#branch"
 
 
 def deck_names(circuit: Circuit) -> DeckNames:
@@ -230,11 +270,15 @@ def deck_names(circuit: Circuit) -> DeckNames:
     sense = None
     if circuit.current_sense is not None:
         sense = elements.get(circuit.current_sense)
+    probe_current = None
+    if circuit.probe_current is not None:
+        probe_current = elements.get(circuit.probe_current)
     return DeckNames(
         MappingProxyType(nodes),
         MappingProxyType(elements),
         (nodes[circuit.probe[0]], nodes[circuit.probe[1]]),
         sense,
+        probe_current,
     )
 
 
@@ -254,14 +298,77 @@ def describe(element: Element, circuit: Circuit) -> str:
     return text
 
 
-def element_line(element: Element, names: DeckNames, circuit: Circuit) -> str:
-    """One deck line for ``element``, with its ``;`` comment."""
+def is_switched(element: Element) -> bool:
+    """Whether a source changes after the first point (a delayed step, any pulse), so
+    that the deck writes it as ``PULSE(...)`` rather than a DC value."""
+    if element.kind not in ("V", "I") or element.timing == "dc":
+        return False
+    return element.timing == "pulse" or element.t_on > 0
+
+
+def pulse_values(element: Element, edge: float, stop: float) -> tuple[float, ...]:
+    """``PULSE`` arguments (initial value, pulsed value, delay, rise, fall, width) of a
+    switched source (see :func:`is_switched`).
+
+    Parameters
+    ----------
+    element
+        A V or I element with ``timing`` ``"step"`` (``t_on > 0``) or ``"pulse"``.
+    edge
+        Rise and fall time (s); each edge is centred on its switching time (or starts
+        at t = 0 when the switching time is closer to 0 than half an edge).
+    stop
+        End of the run (s): a step's plateau outlasts it.
+
+    Returns
+    -------
+    tuple of float
+        ``(v1, v2, td, tr, tf, pw)``. A pulse on from t = 0 starts at its value and
+        falls to 0 at ``t_off`` (``v1`` is the value, ``v2`` zero).
+    """
+    value, half = element.value, edge / 2
+    if element.timing == "step" or element.t_off is None:
+        return (0.0, value, max(element.t_on - half, 0.0), edge, edge, stop)
+    if element.t_on <= 0:
+        return (value, 0.0, max(element.t_off - half, 0.0), edge, edge, stop)
+    start = max(element.t_on - half, 0.0)
+    width = max(element.t_off - half - (start + edge), 0.0)
+    return (0.0, value, start, edge, edge, width)
+
+
+def element_line(
+    element: Element,
+    names: DeckNames,
+    circuit: Circuit,
+    *,
+    initial: Mapping[str, float] | None = None,
+    edge: float = 0.0,
+    stop: float = 0.0,
+) -> str:
+    """One deck line for ``element``, with its ``;`` comment.
+
+    Parameters
+    ----------
+    element, names, circuit
+        The element, the deck's names and the circuit it belongs to.
+    initial
+        ``ic=`` values by element name replacing the elements' ``initial`` (a settled
+        start, see :func:`write_deck`); None: each element's own.
+    edge, stop
+        A switched source's rise and fall time and the run's end (see
+        :func:`pulse_values`).
+    """
     a, b = (names.nodes[n] for n in element.nodes)
     head = f"{names.elements[element.name]} {a} {b}"
-    if element.kind == "V":
+    if element.kind in ("V", "I") and is_switched(element):
+        body = f"{head} PULSE(" + " ".join(
+            spice_number(v) for v in pulse_values(element, edge, stop)
+        ) + ")"
+    elif element.kind in ("V", "I"):
         body = f"{head} dc {spice_number(element.value)}"
     elif element.kind in ("L", "C"):
-        body = f"{head} {spice_number(element.value)} ic={spice_number(element.initial or 0.0)}"
+        start = element.initial if initial is None else initial.get(element.name, 0.0)
+        body = f"{head} {spice_number(element.value)} ic={spice_number(start or 0.0)}"
     elif element.kind == "R":
         body = f"{head} {spice_number(element.value)}"
     else:
@@ -319,22 +426,63 @@ def write_deck(
     method = spice_identifier(settings.method, "trap").lower()
     probe_plus, probe_minus = names.probe
     sense = names.current_sense
+    probe = (
+        f"i({names.probe_current}), first node to second" if names.probe_current
+        else f"v({probe_plus}) - v({probe_minus})"
+    )
     lines = [
         "* " + (safe_text(circuit.title) or "untitled circuit"),
         GENERATED_LINE.format(version=safe_text(__version__)),
         "* fixture: " + (safe_text(source_name or circuit.source) or "not given"),
-        f"* response: {safe_text(circuit.response)}; "
-        f"probe: v({probe_plus}) - v({probe_minus}); "
+        f"* response: {safe_text(circuit.response)}; probe: {probe}; "
         + (f"loop current: i({sense}) in loop order" if sense else "loop current: not sensed"),
-        "* values in SI units (ohm, henry, farad, volt, second); ic is the state at time zero",
+        "* values in SI units (ohm, henry, farad, volt, "
+        + ("ampere, " if any(e.kind == "I" for e in circuit.elements) else "")
+        + "second); ic is the state at time zero",
     ]
-    lines += [element_line(element, names, circuit) for element in circuit.elements]
+    initial = None
+    if circuit.starts_settled:
+        initial = initial_conditions(circuit)
+        lines.append(
+            "* starts settled: each ic is the DC operating point of the dc sources, "
+            "computed by xcheck"
+        )
+    edge = 0.0
+    if any(is_switched(e) for e in circuit.elements):
+        edge, period = switching_edge(circuit, stop)
+        lines.append(
+            f"* switched sources: PULSE with rise and fall {spice_number(edge)} s, "
+            f"{EDGE_FRACTION:g} of the shortest natural period ({spice_number(period)} s), "
+            "each edge centred on its switching time"
+        )
+    lines += [
+        element_line(element, names, circuit, initial=initial, edge=edge, stop=stop)
+        for element in circuit.elements
+    ]
     lines += [
         f".options method={method} {option_text}",
         f".tran {spice_number(step)} {spice_number(stop)} 0 {spice_number(max_step)} uic",
         ".end",
     ]
     return "\n".join(lines) + "\n"
+
+
+def switching_edge(circuit: Circuit, stop: float) -> tuple[float, float]:
+    """Rise and fall time of the deck's switched sources, and the period it is taken
+    from: :data:`EDGE_FRACTION` of the shortest natural period ``2 pi / max |s_k|``
+    (of ``stop`` when the circuit has no natural frequency), rounded down to
+    :data:`STEP_DIGITS` digits so that the deck's text is the same on every machine.
+
+    Returns
+    -------
+    tuple of float
+        (edge, period) in seconds.
+    """
+    poles = natural_frequencies(circuit)
+    fastest = float(np.max(np.abs(poles))) if poles.size else 0.0
+    period = 2 * math.pi / fastest if fastest > 0 else stop
+    period = _round(period, STEP_DIGITS, ROUND_FLOOR)
+    return _round(EDGE_FRACTION * period, STEP_DIGITS, ROUND_FLOOR), period
 
 
 def _option_name(name: str) -> str:

@@ -21,7 +21,9 @@ memory does not grow from run to run.
 Sign conventions: the probe voltage is ``v(plus) - v(minus)`` (ground is node ``0``);
 a voltage source's branch current is SPICE's: the current entering its positive (first)
 node and flowing through it, which for the loop's current-sense source, oriented in loop
-order, is the loop current in the direction the loop is written.
+order, is the loop current in the direction the loop is written. With a current probe
+(:attr:`DeckRun.probe_current`) the probed signal is that 0 V source's branch current
+(``v_probe_l1#branch``), in amperes where a voltage probe's volts would be.
 """
 
 from __future__ import annotations
@@ -81,12 +83,16 @@ class DeckRun:
         Name of the voltage source whose branch current is the loop current, or None.
     name
         What to call the deck in messages (a file name or the fixture's title).
+    probe_current
+        Name of the 0 V source whose branch current is the probed signal (a current
+        probe), or None to read the probe voltage.
     """
 
     deck_text: str
     probe: tuple[str, str]
     current_sense: str | None = None
     name: str = "deck"
+    probe_current: str | None = None
 
 
 # --------------------------------------------------------------------------------------
@@ -175,6 +181,17 @@ def _vector(plot: dict[str, Any], node: str) -> np.ndarray | None:
     raise KeyError(node)
 
 
+def _branch(plot: dict[str, Any], source: str, label: str) -> np.ndarray:
+    """The branch current of voltage source ``source`` (SPICE's sign)."""
+    key = f"{source.lower()}#branch"
+    if key not in plot:
+        raise SimulationError(
+            f"{label}: no branch current {key!r} in ngspice's results "
+            f"(vectors: {', '.join(sorted(plot))})"
+        )
+    return np.asarray(plot[key]._data, dtype=float)
+
+
 def _run_in_child(shared: Any, run: DeckRun) -> dict[str, Any]:
     """Load, run, read back and free one deck. Raises SimulationError on failure."""
     title = run.deck_text.splitlines()[0].strip() if run.deck_text.strip() else ""
@@ -202,23 +219,18 @@ def _run_in_child(shared: Any, run: DeckRun) -> dict[str, Any]:
             raise SimulationError(
                 f"ngspice stopped {label} early, at {reached:.6g} s of {stop} s"
             )
-        try:
-            plus, minus = (_vector(plot, node) for node in run.probe)
-        except KeyError as exc:
-            raise SimulationError(
-                f"{label}: the probe node {exc.args[0]!r} is not in ngspice's results "
-                f"(vectors: {', '.join(sorted(plot))})"
-            ) from None
-        probe = (plus if plus is not None else 0.0) - (minus if minus is not None else 0.0)
-        current = None
-        if run.current_sense:
-            key = f"{run.current_sense.lower()}#branch"
-            if key not in plot:
+        if run.probe_current:
+            probe = _branch(plot, run.probe_current, label)
+        else:
+            try:
+                plus, minus = (_vector(plot, node) for node in run.probe)
+            except KeyError as exc:
                 raise SimulationError(
-                    f"{label}: no branch current {key!r} in ngspice's results "
+                    f"{label}: the probe node {exc.args[0]!r} is not in ngspice's results "
                     f"(vectors: {', '.join(sorted(plot))})"
-                )
-            current = np.asarray(plot[key]._data, dtype=float)
+                ) from None
+            probe = (plus if plus is not None else 0.0) - (minus if minus is not None else 0.0)
+        current = _branch(plot, run.current_sense, label) if run.current_sense else None
         return {
             "time": time,
             "probe": np.broadcast_to(probe, time.shape).astype(float),
@@ -495,6 +507,7 @@ def run_deck(
     current_sense: str | None = None,
     name: str = "deck",
     timeout: float = 60.0,
+    probe_current: str | None = None,
 ) -> Waveform:
     """Run one deck in the module's shared ngspice child process.
 
@@ -511,11 +524,14 @@ def run_deck(
     timeout
         Seconds the run may take (the child's one-off start-up is not counted); a
         longer run is stopped and reported.
+    probe_current
+        Voltage source whose branch current is the probed signal (a current probe), or
+        None for the probe voltage.
 
     Returns
     -------
     Waveform
-        ngspice's time points, probe voltage and loop current; ``engine="ngspice"``.
+        ngspice's time points, probe signal and loop current; ``engine="ngspice"``.
 
     Raises
     ------
@@ -524,7 +540,9 @@ def run_deck(
         error lines quoted), run failed, hung past ``timeout`` or crashed.
     """
     with _shared_lock:
-        return _default_worker().run(DeckRun(deck_text, tuple(probe), current_sense, name), timeout)
+        return _default_worker().run(
+            DeckRun(deck_text, tuple(probe), current_sense, name, probe_current), timeout
+        )
 
 
 def simulate_ngspice(
@@ -545,7 +563,8 @@ def simulate_ngspice(
     Returns
     -------
     Waveform
-        ``engine="ngspice"``; ``notes`` include the time step used.
+        ``engine="ngspice"``; ``notes`` include the time step used. With a current
+        probe, ``probe_voltage`` holds the probed current (A).
     """
     from xcheck.engines.deck import deck_names, write_deck
     from xcheck.engines.timing import transient_settings
@@ -559,6 +578,7 @@ def simulate_ngspice(
         current_sense=names.current_sense,
         name=circuit.source or circuit.title,
         timeout=timeout,
+        probe_current=names.probe_current,
     )
     notes = (
         f"trapezoidal integration, maximum step {settings.max_step:.4g} s, "

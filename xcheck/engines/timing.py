@@ -26,7 +26,7 @@ import numpy as np
 import scipy.linalg
 
 from xcheck.circuit.model import Circuit
-from xcheck.engines.statespace import NaturalModes, natural_modes, state_space
+from xcheck.engines.statespace import NaturalModes, natural_modes, probe_map, state_space
 
 #: Accuracy aimed at: largest error in the probe voltage relative to the reference
 #: voltage (initial capacitor voltage or step).
@@ -42,6 +42,9 @@ MAX_POINTS = 250_000
 #: time constants).
 DECAY_TIME_CONSTANTS = 5.0
 MIN_PERIODS = 10.0
+#: Relative size below which a computed probe value is round-off (double precision
+#: with a few operations' growth).
+ROUND_OFF = 1e-12
 
 
 @dataclass(frozen=True)
@@ -85,7 +88,8 @@ def transient_settings(circuit: Circuit, *, stop_time: float | None = None) -> T
         End of the run in seconds (e.g. the length of a measured trace). Default: five
         time constants of the slowest decaying significant mode, extended
         towards ten periods of the slowest ringing one but not beyond ten time
-        constants; ten periods when nothing decays.
+        constants; ten periods when nothing decays; all of it after the last time a
+        source switches (a delayed step's or a pulse's edges).
 
     Returns
     -------
@@ -109,7 +113,10 @@ def transient_settings(circuit: Circuit, *, stop_time: float | None = None) -> T
 
     amplitude = _clipped_amplitudes(circuit, modes, reference)
     significant = _significant(amplitude, IGNORED_SHARE * TARGET_RELATIVE_ERROR * reference)
-    stop = stop_time if stop_time is not None else _default_stop(poles[significant])
+    stop = (
+        stop_time if stop_time is not None
+        else last_switch(circuit) + _default_stop(poles[significant])
+    )
     budget = RESOLVED_SHARE * TARGET_RELATIVE_ERROR * reference
     drift_rate = 0.0  # sum_k |A_k| |s_k|^3 max_t(t e^{Re s_k t}) / 12, volts per s^2
     for pole, size in zip(poles[significant], amplitude[significant]):
@@ -127,23 +134,42 @@ def transient_settings(circuit: Circuit, *, stop_time: float | None = None) -> T
     return TransientSettings(max_step, stop, max_step, notes=tuple(notes))
 
 
-def reference_voltage(circuit: Circuit, modes: NaturalModes | None = None) -> float:
-    """The voltage an engine's accuracy is relative to (its target here, the engines'
-    difference in ``xcheck simulate``).
+def last_switch(circuit: Circuit) -> float:
+    """The last time (s) a source switches after t = 0 (a delayed step's switch-on, a
+    pulse's switch-off); 0 when none does."""
+    times = [0.0]
+    for element in circuit.elements:
+        if element.kind in ("V", "I") and element.timing != "dc":
+            times.append(element.t_on)
+            if element.t_off is not None:
+                times.append(element.t_off)
+    return max(times)
 
-    The largest initial capacitor voltage, source voltage, initial or final probe
-    voltage, or (for a circuit started by an inductor current alone) the peak of the
-    probe voltage; 1 V when all are zero. ``modes``: the circuit's natural modes, when
+
+def reference_voltage(circuit: Circuit, modes: NaturalModes | None = None) -> float:
+    """The size of the probed signal an engine's accuracy is relative to (its target
+    here, the engines' difference in ``xcheck simulate``), in the probe's unit
+    (:attr:`~xcheck.circuit.model.Circuit.probe_unit`).
+
+    For a voltage probe: the largest initial capacitor voltage, voltage source's value,
+    initial or final probe voltage. For a current probe: the largest current source's
+    value, initial or final probed current. When all are zero (a circuit started by an
+    inductor current alone, a current source probed as a voltage) the peak of the probed
+    signal; 1 when that is zero too. ``modes``: the circuit's natural modes, when
     already known.
     """
     modes = natural_modes(circuit) if modes is None else modes
-    candidates = [abs(modes.initial), abs(modes.steady)]
+    # Computed values at round-off level of the modes' sizes count as zero (a probe
+    # that settles to 0 V comes back as 1e-16 V).
+    noise = ROUND_OFF * float(np.sum(np.abs(modes.amplitudes[np.isfinite(modes.amplitudes)])))
+    candidates = [v for v in (abs(modes.initial), abs(modes.steady)) if v > noise]
+    amperes = circuit.probe_unit == "A"
     for element in circuit.elements:
-        if element.kind == "C" and element.initial is not None:
+        if element.kind == "C" and element.initial is not None and not amperes:
             candidates.append(abs(element.initial))
-        elif element.kind == "V":
+        elif element.kind == ("I" if amperes else "V"):
             candidates.append(abs(element.value))
-    reference = max(candidates)
+    reference = max(candidates, default=0.0)
     if reference > 0:
         return reference
     peak = float(np.max(np.abs(_probe_samples(circuit, _default_stop(modes.poles)))))
@@ -151,10 +177,11 @@ def reference_voltage(circuit: Circuit, modes: NaturalModes | None = None) -> fl
 
 
 def _probe_samples(circuit: Circuit, stop: float, count: int = 4001) -> np.ndarray:
-    """Exact probe voltage on a uniform grid (matrix exponential of the state model),
-    used only to size the response; it stays finite at repeated poles."""
+    """Exact probed signal on a uniform grid (matrix exponential of the state model,
+    every source on from t = 0), used only to size the response; it stays finite at
+    repeated poles."""
     model = state_space(circuit)
-    probe = model.voltage_between(*circuit.probe)
+    probe = probe_map(model, circuit)
     steady_state = model.steady_state()
     step = scipy.linalg.expm(model.a * (stop / (count - 1)))
     x = model.x0 - steady_state
