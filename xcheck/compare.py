@@ -87,8 +87,7 @@ def run_comparison(
     measured = measure(fixture, trace=trace, peaks=peaks, column=column, event_time=event_time)
     observation = measured.observation(max_points=MAX_FIT_POINTS)
     alpha = measured.neper_frequency_per_s.value
-    omega_d = 2 * math.pi * measured.damped_frequency_hz.value
-    candidates = build_candidates(fixture, RingHint(math.hypot(alpha, omega_d)))
+    candidates = build_candidates(fixture, RingHint(measured.natural_angular_frequency))
     fits: list[FitResult] = []
     for index, candidate in enumerate(candidates, 1):
         say(f"fitting candidate {index}/{len(candidates)}: {candidate.name}")
@@ -203,7 +202,7 @@ def _metrics(engine: str, obs: Observation, curve: np.ndarray | None, fit: FitRe
         chi2 = float(np.sum((error / obs.sigmas) ** 2))
         _, aic, bic = obs.criteria(chi2, error.size, fit.k)
     f_err = a_err = float("nan")
-    if ring is not None:
+    if ring is not None and not measured.aperiodic:
         f_err = ring[0] - measured.damped_frequency_hz.value
         a_err = ring[1] - measured.neper_frequency_per_s.value
     amplitude = measured.event_size or float(np.ptp(obs.voltage)) or 1.0

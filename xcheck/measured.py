@@ -22,7 +22,9 @@ from xcheck.fitting.fit import FitResult
 from xcheck.fitting.observation import Observation, PeakObservation, TraceObservation
 from xcheck.fixture.model import Fixture
 from xcheck.ringdown import RingdownEstimate
+from xcheck.ringdown.aperiodic_result import AperiodicEstimate
 from xcheck.ringdown.from_file import ringdown_from_file
+from xcheck.ringdown.result import Estimate
 from xcheck.ringdown.peaks import decimal_resolution, rounded_time_sigma
 from xcheck.values import format_eng
 
@@ -69,7 +71,8 @@ class Measured(ABC):
     uncertainty
         Per-reading uncertainty of a peak table (V), or None.
     estimate
-        The ring-down estimate.
+        The ring-down estimate, or for a trace that settles without ringing the
+        aperiodic one (time constants; ``aperiodic`` is then True).
     alignment
         Event time, baseline, noise, droop and inversion (traces only).
     findings
@@ -85,21 +88,68 @@ class Measured(ABC):
     voltage: np.ndarray
     excluded: np.ndarray
     uncertainty: np.ndarray | None
-    estimate: RingdownEstimate
+    estimate: RingdownEstimate | AperiodicEstimate
     alignment: Alignment | None
     findings: tuple[str, ...]
     notes: tuple[str, ...] = ()
     time_resolution: float | None = None
 
     @property
-    def damped_frequency_hz(self):
-        """f_d estimate (Hz) with standard error."""
+    def aperiodic(self) -> bool:
+        """True when the measurement settles without ringing."""
+        return bool(getattr(self.estimate, "aperiodic", False))
+
+    @property
+    def damped_frequency_hz(self) -> Estimate:
+        """f_d estimate (Hz) with standard error; 0 for a response that does not ring."""
+        if self.aperiodic:
+            return Estimate(0.0, 0.0)
         return self.estimate.damped_frequency
 
     @property
-    def neper_frequency_per_s(self):
-        """alpha estimate (1/s) with standard error."""
-        return self.estimate.neper_frequency
+    def neper_frequency_per_s(self) -> Estimate:
+        """alpha estimate (1/s) with standard error. For a response that does not ring,
+        half the sum of its decay rates (s1 + s2 = 2 zeta omega0 = 2 alpha for a
+        second-order circuit, standard circuit theory, from memory; the rates' standard
+        errors combined as if independent), or its one decay rate (first order)."""
+        if not self.aperiodic:
+            return self.estimate.neper_frequency
+        rates = self.estimate.decay_rates
+        if self.estimate.regime == "overdamped" and len(rates) == 2:
+            return Estimate(0.5 * (rates[0].value + rates[1].value),
+                            0.5 * math.hypot(rates[0].stderr, rates[1].stderr))
+        return Estimate(rates[0].value, rates[0].stderr)
+
+    @property
+    def natural_angular_frequency(self) -> float:
+        """omega0 (rad/s): from the ring (sqrt(alpha^2 + omega_d^2)) or from the decay
+        rates (sqrt(s1 s2)); 0 when a first-order response does not give it."""
+        if self.aperiodic:
+            value = self.estimate.natural_angular_frequency
+            return value.value if value is not None else 0.0
+        return math.hypot(self.estimate.neper_frequency.value,
+                          2 * math.pi * self.estimate.damped_frequency.value)
+
+    @property
+    def time_scale(self) -> float:
+        """A period-like time (s) that bounds the fit's time shift: the ring period, or
+        2 pi over omega0 (2 pi times the time constant of a first-order response)."""
+        if not self.aperiodic:
+            return 1.0 / self.estimate.damped_frequency.value
+        omega0 = self.natural_angular_frequency
+        if omega0 > 0:
+            return 2 * math.pi / omega0
+        return 2 * math.pi * self.estimate.time_constants[0].value
+
+    @property
+    def fit_end(self) -> float:
+        """Time after the event (s) beyond which only noise is left:
+        :data:`WINDOW_TIME_CONSTANTS` decay time constants (the slowest, when the
+        response does not ring)."""
+        if self.aperiodic:
+            return WINDOW_TIME_CONSTANTS * self.estimate.time_constants[0].value
+        alpha = max(self.estimate.neper_frequency.value, 0.0)
+        return WINDOW_TIME_CONSTANTS / alpha if alpha > 0 else math.inf
 
     @property
     def initial_volts(self):
@@ -124,8 +174,11 @@ class Measured(ABC):
         """How far the fit misses, in units of the measurement's own error (see the
         subclasses); call only when ``fit.n > fit.k``."""
 
-    def envelope(self) -> Envelope:
-        """Extrema magnitudes about the fitted offset, for the envelope figure."""
+    def envelope(self) -> Envelope | None:
+        """Extrema magnitudes about the fitted offset, for the envelope figure; None
+        for a response that does not ring."""
+        if self.aperiodic:
+            return None
         est = self.estimate
         offset = est.offset.value
         return Envelope(np.asarray(est.extrema_time, float),
@@ -144,11 +197,8 @@ class MeasuredTrace(Measured):
         """The samples from the event to :data:`WINDOW_TIME_CONSTANTS` decay time
         constants after it, clipped samples left out, decimated evenly to at most
         ``max_points``; the effective sample count scaled to the share kept."""
-        period = 1.0 / self.estimate.damped_frequency.value
-        alpha = max(self.estimate.neper_frequency.value, 0.0)
-        end = self.time[-1]
-        if alpha > 0:
-            end = min(end, WINDOW_TIME_CONSTANTS / alpha)
+        period = self.time_scale
+        end = min(self.time[-1], self.fit_end)
         window = (self.time <= end) & ~self.excluded
         index = np.flatnonzero(window)
         step = max(1, int(math.ceil(index.size / max_points)))
@@ -242,6 +292,7 @@ def measure(
     found = ringdown_from_file(
         peaks if peaks is not None else trace, peaks=peaks is not None, column=column,
         event_time=event_time, expect=fixture.response, expected_sign=_expected_sign(fixture),
+        allow_aperiodic=True,
     )
     estimate = found.estimate
     if found.is_peak_table:
@@ -267,8 +318,12 @@ def measure(
             "(a charged capacitor droops through leakage and probe loading); pre-event noise "
             f"{format_eng(alignment.noise_rms, 'V')} RMS, baseline {format_eng(alignment.baseline, 'V')}."
         )
-    notes.extend(estimate.envelope.findings)
-    findings.extend(_envelope_findings(estimate))
+    if getattr(estimate, "aperiodic", False):
+        notes.extend(estimate.notes)
+        findings.append(_aperiodic_finding(estimate))
+    else:
+        notes.extend(estimate.envelope.findings)
+        findings.extend(_envelope_findings(estimate))
     return MeasuredTrace(str(trace), found.time, found.voltage, excluded, None, estimate,
                          alignment, tuple(findings), tuple(notes))
 
@@ -278,3 +333,17 @@ def _envelope_findings(estimate: RingdownEstimate) -> tuple[str, ...]:
     if estimate.envelope_exponential and not estimate.flagged_extrema:
         return ("The extrema decay as one exponential within their uncertainties.",)
     return tuple(estimate.envelope.findings)
+
+
+def _aperiodic_finding(estimate: AperiodicEstimate) -> str:
+    """The verdict's sentence for a measurement that settles without ringing."""
+    taus = " and ".join(f"{format_eng(t.value, 's')} ± {format_eng(t.stderr, 's')}"
+                        for t in estimate.time_constants)
+    text = f"The measurement does not ring: it settles as a {estimate.regime} response"
+    if estimate.regime == "first order":
+        return text + f" with time constant {taus}."
+    zeta = estimate.damping_ratio
+    text += f" with time constant{'s' if len(estimate.time_constants) > 1 else ''} {taus}"
+    if zeta is not None:
+        text += f" (zeta {zeta.value:.3g} ± {zeta.stderr:.2g})"
+    return text + "."

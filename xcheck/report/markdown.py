@@ -234,5 +234,7 @@ def _write_figures(comparison: Comparison, folder: Path) -> None:
     sigma = float(np.median(np.broadcast_to(np.asarray(obs.sigma, float), obs.voltage.shape)))
     residual_figure(folder / "residuals.png", obs.time, residuals, sigma)
     env = comparison.measured.envelope()
+    if env is None:  # a response that does not ring has no envelope
+        return
     envelope_figure(folder / "envelope.png", env.times, env.amplitudes, env.flagged, env.alpha,
                     env.amplitude0)

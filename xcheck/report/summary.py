@@ -147,11 +147,16 @@ def _measured_json(measured: Measured) -> dict[str, Any]:
     data: dict[str, Any] = {
         "kind": measured.kind,
         "source": display_path(measured.source),
-        "damped_frequency_hz": _pair(est.damped_frequency),
-        "neper_frequency_per_s": _pair(est.neper_frequency),
+        "damped_frequency_hz": _pair(measured.damped_frequency_hz),
+        "neper_frequency_per_s": _pair(measured.neper_frequency_per_s),
         "initial_volts": _pair(est.initial_volts),
-        "envelope_exponential": bool(est.envelope_exponential),
-        "flagged_extrema": [int(i) for i in est.flagged_extrema],
+        "regime": est.regime if measured.aperiodic else "underdamped",
+        "time_constants_s": ([_pair(t) for t in est.time_constants] if measured.aperiodic
+                             else None),
+        "envelope_exponential": (None if measured.aperiodic
+                                 else bool(est.envelope_exponential)),
+        "flagged_extrema": ([] if measured.aperiodic
+                            else [int(i) for i in est.flagged_extrema]),
         "noise_sigma_volts": _finite(est.noise_sigma),
         "effective_samples": _finite(est.effective_samples),
         "samples_excluded": int(measured.excluded.sum()),
