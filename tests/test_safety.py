@@ -49,3 +49,29 @@ def test_high_energy_is_hazardous_at_low_voltage():
 
 def test_caution_defers_to_local_codes():
     assert "local codes" in CAUTION and "E = CV²/2" in CAUTION
+
+
+def test_a_source_part_counts_its_voltage_and_the_energy_it_settles_into():
+    # A 400 V step through 10 ohm charges a 1 mF capacitor to 400 V at the DC
+    # operating point it settles to (no current through the capacitor at DC; common practice, no
+    # source): E = C V^2 / 2 = 80 J, and the 100 uH inductor carries no DC current
+    # here (the capacitor blocks it), so it adds nothing.
+    fixture = parse_fixture(
+        {
+            "version": 2,
+            "title": "supply switched onto a capacitor bank (invented example)",
+            "response": "step",
+            "probe": ["out", "0"],
+            "parts": {
+                "V1": {"kind": "voltage_source", "volts": "400", "waveform": "step",
+                       "source_resistance": "10", "nodes": ["in", "0"]},
+                "L1": {"kind": "inductor", "nominal": "100u", "nodes": ["in", "out"]},
+                "C1": {"kind": "capacitor", "nominal": "1m", "nodes": ["out", "0"]},
+            },
+        },
+        "inline",
+    )
+    result = assess(fixture)
+    assert result.max_volts == pytest.approx(400.0)
+    assert result.stored_energy_joules == pytest.approx(0.5 * 1e-3 * 400**2, rel=1e-9)
+    assert result.hazardous

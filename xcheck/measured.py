@@ -256,12 +256,33 @@ def _time_scatter(time: np.ndarray, period: float, resolution: float | None = No
 
 
 def _expected_sign(fixture: Fixture) -> int | None:
+    """The sign of the event's excursion the fixture predicts: the step's, or the
+    probed part's initial voltage; otherwise (a node-pair or current probe, a source
+    part) from the exact engine on the stated values, the sign of the swing from the
+    start to the settled level (None when the stated values do not build a circuit)."""
     part = fixture.probed_part
     if fixture.response == "step" and fixture.step is not None:
         return int(np.sign(fixture.step.volts)) or None
-    if part.initial:
+    if part is not None and part.initial:
         return int(np.sign(part.initial))
-    return None
+    from xcheck.circuit.expand import build_circuit
+    from xcheck.circuit.parameters import parameters_from_fixture
+    from xcheck.engines.exact import ExactEngine
+    from xcheck.errors import XcheckError
+
+    try:
+        circuit = build_circuit(fixture, parameters_from_fixture(fixture))
+        engine = ExactEngine(circuit)
+        model = engine.model()
+        poles = np.linalg.eigvals(model.a[0])
+        slowest = float(np.min(-poles.real)) if poles.size else 0.0
+        if not slowest > 0:
+            return None
+        start, settled = engine.signal(np.array([0.0, 60.0 / slowest]), model)[0]
+    except (XcheckError, ValueError, np.linalg.LinAlgError):
+        return None
+    swing = settled - start if fixture.response == "step" else start - settled
+    return int(np.sign(swing)) or None
 
 
 def measure(

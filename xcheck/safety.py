@@ -38,6 +38,34 @@ class SafetyAssessment:
     reasons: tuple[str, ...]
 
 
+def _settled_energy(fixture: Fixture) -> float:
+    """Energy (J) the capacitors and inductors hold once every source part is on and
+    the circuit has settled (C V^2 / 2 and L I^2 / 2 at the DC operating point); 0
+    when the stated values do not build a circuit."""
+    from xcheck.circuit.expand import build_circuit
+    from xcheck.circuit.parameters import parameters_from_fixture
+    from xcheck.engines.statespace import state_space
+    from xcheck.errors import XcheckError
+
+    try:
+        circuit = build_circuit(fixture, parameters_from_fixture(fixture))
+        model = state_space(circuit)
+        settled = model.steady_state()
+    except (XcheckError, ValueError, ArithmeticError):
+        return 0.0
+    energy = 0.0
+    for element in circuit.elements:
+        if element.kind == "C":
+            m = model.branch_voltage[element.name]
+        elif element.kind == "L":
+            m = model.branch_current[element.name]
+        else:
+            continue
+        level = float(m.x_coef @ settled + m.u_coef @ model.u)
+        energy += 0.5 * element.value * level**2
+    return energy
+
+
 def assess(fixture: Fixture) -> SafetyAssessment:
     """Assess the voltages and stored energy stated in ``fixture``.
 
@@ -66,6 +94,12 @@ def assess(fixture: Fixture) -> SafetyAssessment:
             energy += 0.5 * value * part.initial**2
     if fixture.step is not None:
         volts = max(volts, abs(fixture.step.volts))
+    sources = [p for p in fixture.parts.values() if p.source is not None]
+    for part in sources:
+        if PART_KINDS[part.kind].source.unit == "V":
+            volts = max(volts, abs(part.source.value))
+    if sources:
+        energy = max(energy, _settled_energy(fixture))
     reasons = []
     if volts > HAZARDOUS_VOLTS:
         reasons.append(f"{format_eng(volts, 'V')} exceeds about 60 V DC")

@@ -67,7 +67,7 @@ def test_without_closed_form_the_exact_engine_is_the_theory_leg(
     out = tmp_path / "out"
     assert main(["simulate", str(fixture), "--out", str(out)]) == 0
     printed = printed().out
-    assert "no closed form" in printed and "neglect" in printed and "L1" in printed
+    assert "no closed form:" in printed and "neglect" in printed and "L1" in printed
     assert "natural modes (exact state space)" in printed
     header, data = _read_csv(out / "prediction.csv")
     assert header == ["time_s", "ngspice_probe_V", "theory_probe_V", "ngspice_current_A",

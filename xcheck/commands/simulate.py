@@ -4,9 +4,9 @@ Builds the circuit from the values the fixture states (measured where given, els
 label; parasitics written ``"?"`` are left out and listed), runs ngspice and the exact
 state-space engine, and writes into DIR (default ``reports/<fixture name>/simulate/``):
 
-- ``prediction.csv``: ``time_s,ngspice_probe_V,theory_probe_V`` and, when the loop
-  current is known, ``ngspice_current_A,theory_current_A``; the theory columns are the
-  exact engine on ngspice's own time points (a current probe's columns hold amperes).
+- ``prediction.csv``: ``time_s,ngspice_probe_V,theory_probe_V`` (``_A`` for a current
+  probe) and, when the loop current is known, ``ngspice_current_A,theory_current_A``;
+  the theory columns are the exact engine on ngspice's own time points.
 - ``overlay.png``: both probe signals and their difference against time.
 
 It prints the natural modes (frequency, damping, share of the response, the parts that
@@ -98,7 +98,7 @@ def summary_text(fixture: Fixture, prediction: Prediction, written: list[Path]) 
         lines += [f"    {mode.sentence()}" for mode in prediction.modes]
     order = prediction.order
     if order is None:
-        lines.append(f"  no closed form (not a textbook loop): {prediction.why_no_theory}")
+        lines.append(f"  no closed form: {prediction.why_no_theory}")
     elif order.regime == "first order":
         lines.append("  closed form: first-order loop")
         lines.append(f"    time constant  {format_eng(order.time_constant, 's')}")
@@ -115,14 +115,14 @@ def summary_text(fixture: Fixture, prediction: Prediction, written: list[Path]) 
         ]
     if prediction.closed_form_gap is not None:
         lines.append(f"    closed form vs exact engine: {prediction.closed_form_gap:.2e} of "
-                     f"{format_eng(prediction.reference, 'V')}")
+                     f"{format_eng(prediction.reference, prediction.unit)}")
     gap = prediction.largest_difference
     if gap is not None:
         size, when = gap
         lines.append(
-            f"  largest difference between ngspice and theory: {format_eng(size, 'V')} at "
+            f"  largest difference between ngspice and theory: {format_eng(size, prediction.unit)} at "
             f"t = {format_eng(when, 's')} ({size / prediction.reference:.2e} of "
-            f"{format_eng(prediction.reference, 'V')})"
+            f"{format_eng(prediction.reference, prediction.unit)})"
         )
     for note in (prediction.ngspice.notes + (prediction.theory.notes if prediction.theory else ())):
         lines.append(f"  note: {note}")

@@ -28,7 +28,7 @@ from xcheck.engines.waveform import Waveform
 from xcheck.fixture.model import Fixture
 
 #: How every prediction CSV starts: an earlier one may be replaced, nothing else.
-CSV_HEADER_START = "time_s,ngspice_probe_V"
+CSV_HEADER_START = "time_s,ngspice_probe_"
 
 
 @dataclass(frozen=True)
@@ -67,10 +67,13 @@ class Prediction:
     title: str = ""
     closed_form_gap: float | None = None
     modes: tuple[NamedMode, ...] = ()
+    #: The probed signal's unit: "V", or "A" for a current probe.
+    unit: str = "V"
 
     @property
     def largest_difference(self) -> tuple[float, float] | None:
-        """(largest |ngspice - theory| in V, time at which it occurs in s), or None."""
+        """(largest |ngspice - theory| in :attr:`unit`, time at which it occurs in s),
+        or None."""
         if self.theory is None:
             return None
         gap = np.abs(self.ngspice.probe_voltage - self.theory.probe_voltage)
@@ -80,9 +83,9 @@ class Prediction:
     def columns(self) -> dict[str, np.ndarray]:
         """CSV columns (SI units in the names), in order."""
         spice, theory = self.ngspice, self.theory
-        data = {"time_s": spice.time, "ngspice_probe_V": spice.probe_voltage}
+        data = {"time_s": spice.time, f"ngspice_probe_{self.unit}": spice.probe_voltage}
         if theory is not None:
-            data["theory_probe_V"] = theory.probe_voltage
+            data[f"theory_probe_{self.unit}"] = theory.probe_voltage
         if spice.loop_current is not None:
             data["ngspice_current_A"] = spice.loop_current
             if theory is not None and theory.loop_current is not None:
@@ -116,7 +119,7 @@ def predict(circuit: Circuit, left_out: tuple[str, ...] = ()) -> Prediction:
     except TheoryNotApplicable as exc:
         order, why = None, str(exc)
     return Prediction(spice, theory, order, why, reference, left_out, circuit.title, gap,
-                      natural_modes_named(circuit))
+                      natural_modes_named(circuit), circuit.probe_unit)
 
 
 def unknown_parasitics(fixture: Fixture) -> tuple[str, ...]:

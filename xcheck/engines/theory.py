@@ -328,8 +328,30 @@ class _Reduced:
     neglected: tuple[Element, ...]
 
 
+def _check_excitation(circuit: Circuit) -> None:
+    """The closed form covers sources constant from t = 0 and a voltage probe."""
+    for element in circuit.elements:
+        if element.kind == "I":
+            raise TheoryNotApplicable(
+                f"circuit {circuit.title!r}: the closed form has no current sources "
+                f"({element.name})")
+        if element.kind == "V" and element.timing != "dc" and (
+                element.t_on > 0 or element.t_off is not None):
+            raise TheoryNotApplicable(
+                f"circuit {circuit.title!r}: the closed form covers sources switched on at "
+                f"t = 0 and left on ({element.name} is delayed or a pulse)")
+    if circuit.probe_current is not None:
+        raise TheoryNotApplicable(
+            f"circuit {circuit.title!r}: the closed form covers voltage probes only")
+    if circuit.starts_settled:
+        raise TheoryNotApplicable(
+            f"circuit {circuit.title!r}: the closed form covers stated initial values, "
+            "not a settled start")
+
+
 def _loop_order(circuit: Circuit) -> list[tuple[Element, float]]:
     """Loop elements in traversal order with +1 when traversed first -> second node."""
+    _check_excitation(circuit)
     loop = [e for e in circuit.elements if getattr(e, "in_loop", True)]
     if not loop:
         raise TheoryNotApplicable(f"circuit {circuit.title!r} has no series loop")

@@ -315,7 +315,8 @@ def prediction_figure(path: Path, prediction: Prediction, title: str) -> Path:
     if theory is not None:
         top.plot(theory.time, theory.probe_voltage, color="0.55", linestyle="--",
                  linewidth=1.4, label="closed-form theory")
-    top.set_ylabel("probe voltage (V)")
+    unit = getattr(prediction, "unit", "V")
+    top.set_ylabel("probe current (A)" if unit == "A" else "probe voltage (V)")
     top.set_title(title, fontsize=10)
     top.legend(loc="best", frameon=False)
     top.yaxis.set_major_formatter(EngFormatter(unit="V"))
@@ -323,7 +324,7 @@ def prediction_figure(path: Path, prediction: Prediction, title: str) -> Path:
         bottom = axes[1][0]
         bottom.plot(spice.time, theory.probe_voltage - spice.probe_voltage, color="black",
                     linestyle=":", linewidth=1.2, label="theory minus ngspice")
-        bottom.set_ylabel("difference (V)")
+        bottom.set_ylabel(f"difference ({unit})")
         bottom.yaxis.set_major_formatter(EngFormatter(unit="V"))
         bottom.legend(loc="best", frameon=False)
     axes[-1][0].set_xlabel("time since t = 0 (s)")
