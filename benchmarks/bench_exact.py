@@ -120,7 +120,7 @@ def rows(sets: int = 1000, spice_runs: int = 20) -> list[Row]:
             f"ngspice {spice * 1e3:.2f} ms per run; exact engine {exact * 1e6:.1f} µs per value "
             f"set, {sets} sets in one call, {points} uniform time points each (as many as "
             f"ngspice returned); on ngspice's own time points {own * 1e6:.0f} µs per set "
-            f"({spice / own:.0f}x)",
+            f"({spice / own:.0f}x){reason}",
         ))
         out.append(Row(
             f"{key}-agreement", "exact engine vs ngspice, largest difference (nominal run)",

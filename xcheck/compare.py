@@ -20,10 +20,12 @@ from xcheck.fitting.candidates import (
     Candidate,
     RingHint,
     build_candidates,
+    describe_key,
     series_resistance,
 )
 from xcheck.circuit.expand import build_circuit
 from xcheck.engines.exact import ExactEngine, dominant_ring
+from xcheck.engines.modes import natural_modes_named
 from xcheck.engines.theory import TheoryNotApplicable, characterise
 from xcheck.errors import SimulationError, XcheckError
 from xcheck.fitting.fit import FitResult, fit_candidate
@@ -148,6 +150,8 @@ def _evaluate(
         second = None
         notes.append(f"no closed form for the report's formulas: {exc}")
     theory_curve = fit.model
+    modes = natural_modes_named(
+        circuit, lambda e: describe_key(fixture, (e.part, e.role)) if e.part else e.name)
     engine = ExactEngine(circuit)
     dominant = dominant_ring(engine, engine.model())
     ring = (dominant[0] / (2 * math.pi), dominant[1]) if dominant is not None else None
@@ -174,6 +178,7 @@ def _evaluate(
         tuple(notes),
         theory_curve,
         ngspice_curve,
+        modes,
     )
 
 

@@ -210,8 +210,13 @@ class MeasuredTrace(Measured):
 
     def misfit_ratio(self, fit: FitResult) -> float:
         """The fit's residual RMS over the pre-event noise (1 when the model explains
-        the trace down to the noise)."""
+        the trace down to the noise). The instrument's noise is the pre-event line's
+        scatter where the record has one (the estimate's noise level can be its own
+        residuals, which an unmodelled second mode inflates)."""
         noise = self.estimate.noise_sigma
+        if self.alignment is not None and self.alignment.pre_event_samples > 10 \
+                and self.alignment.noise_rms > 0:
+            noise = self.alignment.noise_rms
         return fit.rmse / noise if noise > 0 else float("inf")
 
 
@@ -267,7 +272,7 @@ def _expected_sign(fixture: Fixture) -> int | None:
         return int(np.sign(part.initial))
     from xcheck.circuit.expand import build_circuit
     from xcheck.circuit.parameters import parameters_from_fixture
-    from xcheck.engines.exact import ExactEngine
+    from xcheck.engines.exact import ExactEngine, dominant_ring
     from xcheck.errors import XcheckError
 
     try:
@@ -279,9 +284,19 @@ def _expected_sign(fixture: Fixture) -> int | None:
         if not slowest > 0:
             return None
         start, settled = engine.signal(np.array([0.0, 60.0 / slowest]), model)[0]
+        ring = dominant_ring(engine, model)
+        span = math.pi / ring[0] if ring is not None else 5.0 / slowest
+        early = engine.signal(np.linspace(0.0, span, 401), model)[0] - start
     except (XcheckError, ValueError, np.linalg.LinAlgError):
         return None
     swing = settled - start if fixture.response == "step" else start - settled
+    first = float(early[np.argmax(np.abs(early))])
+    if abs(swing) < 1e-3 * abs(first):
+        # Starts and settles at one level (a probe across an inductor): from the first
+        # swing, within the dominant ring's first half period, counted as the
+        # alignment counts it (a natural response's excursion is the start above the
+        # settled level, so a first swing downwards means a positive one).
+        swing = first if fixture.response == "step" else -first
     return int(np.sign(swing)) or None
 
 

@@ -14,6 +14,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from xcheck.engines.modes import NamedMode
 from xcheck.engines.theory import SecondOrder
 from xcheck.fitting.candidates import Candidate
 from xcheck.fitting.fit import FitResult
@@ -56,6 +57,9 @@ class CandidateOutcome:
     engine_notes: tuple[str, ...] = ()
     theory_curve: np.ndarray | None = None
     ngspice_curve: np.ndarray | None = None
+    #: The fitted circuit's natural modes, largest share first
+    #: (:func:`xcheck.engines.modes.natural_modes_named`).
+    modes: tuple[NamedMode, ...] = ()
 
     @property
     def name(self) -> str:

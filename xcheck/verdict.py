@@ -184,6 +184,19 @@ def _misfit(best: CandidateOutcome, measured: Measured) -> float | None:
     return ratio if ratio > MISFIT_LIMIT else None
 
 
+#: Modes carrying at least this share of the probed response are named in the verdict.
+MODE_SHARE_SHOWN = 0.01
+
+
+def _modes_sentence(outcome: CandidateOutcome) -> str:
+    """Names the candidate's natural modes when more than one shows in the response."""
+    shown = [m for m in outcome.modes if m.share >= MODE_SHARE_SHOWN]
+    if len(shown) < 2:
+        return ""
+    return (f"Candidate '{outcome.name}' has {len(shown)} modes in the probed response: "
+            + "; ".join(m.sentence() for m in shown))
+
+
 def _bound_sentence(fixture: Fixture, value: FittedValue) -> str:
     """Words for a fitted value that ended on one of its bounds."""
     which = "lower" if abs(value.value - value.lower) <= abs(value.upper - value.value) else "upper"
@@ -191,9 +204,9 @@ def _bound_sentence(fixture: Fixture, value: FittedValue) -> str:
     text = (f"{describe_key(fixture, value.key)} stopped at its {which} bound of "
             f"{format_eng(edge, value.unit)}, so its ± understates the uncertainty")
     if which == "lower" and edge == 0:
-        text += (": the data want less than none of it (a physical value cannot be "
-                 "negative), so the stated values already account for more than was "
-                 "measured; check them")
+        text += (": the data need none of it, or less than none, which no physical value "
+                 "can be (if the stated values account for more than was measured, the "
+                 "loop findings below say by how much)")
     return text
 
 
@@ -242,13 +255,19 @@ def write_verdict(fixture: Fixture, measured: Measured, outcomes: list[Candidate
         if any(value.label in d.members and d.combination in ("sum", "product")
                for d in best.fit.degeneracies):
             continue
+        shown = value.value
+        if value.at_bound and value.lower == 0 and abs(value.value) <= 1e-9 * max(value.upper, 1e-300):
+            shown = 0.0  # on the bound to rounding
         parts.append(
-            f"Fitted {describe_key(fixture, value.key)} = {format_eng(value.value, value.unit)} ± "
+            f"Fitted {describe_key(fixture, value.key)} = {format_eng(shown, value.unit)} ± "
             f"{format_eng(value.stderr, value.unit)}{_against_label(fixture, value)}."
         )
         if value.at_bound:
             parts.append(_bound_sentence(fixture, value))
     parts.extend(_degeneracy_sentences(fixture, best))
+    sentence = _modes_sentence(best)
+    if sentence:
+        parts.append(sentence)
     for other in outcomes:
         if other is best or other.failed or other.ranked.evidence != "not distinguishable":
             continue

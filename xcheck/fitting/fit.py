@@ -15,6 +15,7 @@ instrument. ``FitResult.nuisance`` holds them in SI units.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -141,6 +142,67 @@ def _collapse(free: tuple[FreeParameter, ...], groups: tuple[Degeneracy, ...]) -
     return tuple(f for f in free if f.label not in fixed)
 
 
+#: Free values whose bounds span more than this ratio are scanned for a start value.
+SCAN_SPAN = 10.0
+#: Spacing of the scan (ratio of neighbouring values): a mode's frequency then moves by
+#: about 1 % between neighbours (f ~ 1 / sqrt(L C)), inside the basin of a fit to some
+#: twenty cycles of ringing.
+SCAN_RATIO = 1.02
+#: Most values per scan.
+SCAN_MAX_POINTS = 1200
+
+
+def _scanned_start(model: CandidateModel, obs: Observation, start: np.ndarray,
+                   lower: np.ndarray, upper: np.ndarray) -> np.ndarray:
+    """Start values improved by scanning each widely bounded free value (traces).
+
+    A value known only within decades (an ESL written ``"?"``) makes the residual
+    oscillate with it (a mode's frequency moves through the record's ringing), so a
+    local optimiser started at a typical value stops in the nearest dip. Each such
+    value in turn is scanned on a log grid (:data:`SCAN_RATIO`) across its bounds, the
+    others held, the whole grid in one batch of the exact engine; each trial gets its
+    best instrument gain and offset by linear least squares, and the lowest weighted
+    residual sum is kept. Peak tables are not scanned (their readings are few and
+    numbered by the ring, which the scan would move).
+    """
+    if obs.discrete:
+        return start
+    best = start.copy()
+    weight = 1.0 / obs.sigmas
+    target = obs.voltage * weight
+
+    def costs(trials: np.ndarray) -> np.ndarray:
+        with np.errstate(all="ignore"):
+            shapes = model.shapes(trials, obs.time) * weight
+        # Per trial, min over (gain, offset) of |gain s + offset w - v w|^2.
+        design_ww = float(np.sum(weight**2))
+        ss = np.sum(shapes**2, axis=1)
+        sw = shapes @ weight
+        sv = shapes @ target
+        wv = float(weight @ target)
+        det = ss * design_ww - sw**2
+        with np.errstate(all="ignore"):
+            gain = (sv * design_ww - sw * wv) / det
+            offset = (ss * wv - sw * sv) / det
+            residual = np.sum((shapes * gain[:, None] + np.outer(offset, weight) - target) ** 2, axis=1)
+        return np.where(np.isfinite(residual), residual, np.inf)
+
+    for k in range(len(start)):
+        top = upper[k]
+        bottom = lower[k] if lower[k] > 0 else top * 1e-4
+        if not (np.isfinite(top) and top > 0 and top / bottom > SCAN_SPAN):
+            continue
+        count = min(SCAN_MAX_POINTS, int(math.ceil(math.log(top / bottom) / math.log(SCAN_RATIO))) + 1)
+        trials = np.repeat(best[None, :], count + 1, axis=0)
+        trials[1:, k] = np.geomspace(bottom, top, count)
+        try:
+            scores = costs(trials)
+        except (XcheckError, ValueError, FloatingPointError, np.linalg.LinAlgError):
+            continue
+        best = trials[int(np.argmin(scores))]
+    return best
+
+
 def _fit(fixture: Fixture, candidate: Candidate, obs: Observation,
          free: tuple[FreeParameter, ...]) -> FitResult:
     model = CandidateModel(fixture, candidate, free)
@@ -150,6 +212,8 @@ def _fit(fixture: Fixture, candidate: Candidate, obs: Observation,
     start = np.clip(start, lower, upper)
     scale = np.maximum(np.abs(start), (upper - lower) * 1e-3)
     scale = np.where(scale > 0, scale, 1.0)
+    readings = obs.residuals(model, start)
+    start = _scanned_start(model, obs, start, lower, upper)
     readings = obs.residuals(model, start)
     x0 = np.concatenate([start / scale, readings.start])
     lo = np.concatenate([lower / scale, readings.lower])

@@ -102,6 +102,20 @@ class CandidateModel:
         engine, model = self._batch(physical)
         return engine.signal(np.maximum(times, 0.0), model)[0]
 
+    def shapes(self, physicals: np.ndarray, times: np.ndarray) -> np.ndarray:
+        """``(batch, len(times))`` unscaled probed signals for a batch of free values
+        (``(batch, n_free)``), in one call of the exact engine."""
+        physicals = np.atleast_2d(np.asarray(physicals, dtype=float))
+        times = np.maximum(times, 0.0)
+        self.evaluations += physicals.shape[0]
+        if self.rebuilds:
+            return np.stack([ExactEngine(self.circuit(p)).response(times)[0] for p in physicals])
+        values = np.repeat(self._values, physicals.shape[0], axis=0)
+        for k, cols in enumerate(self._columns):
+            values[:, cols] = physicals[:, k:k + 1]
+        initials = np.repeat(self._initials, physicals.shape[0], axis=0)
+        return self.engine.response(times, values, initials)
+
     def extrema(self, physical: np.ndarray, count: int) -> tuple[np.ndarray, np.ndarray]:
         """Times (from the event) and values of the first ``count`` turning points of
         the dominant ring, the event itself being turning point 0."""

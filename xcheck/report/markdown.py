@@ -132,6 +132,17 @@ def markdown(comparison: Comparison, data: dict[str, Any]) -> str:
               "gain (probe attenuation and true initial voltage, 1 = as stated), offset (scope DC "
               "offset, V), shift (error of the detected event time, s); for a peak table, amplitude "
               "(1 = as predicted) and time_origin (s).", ""]
+    best = next((o for o in comparison.outcomes if o.ranked.rank == 1), None)
+    if best is not None and best.modes:
+        lines += [f"## Natural modes of '{md(best.name)}'", "",
+                  "| frequency | α (decay rate) | ζ | share of the response | made by |",
+                  "|---:|---:|---:|---:|---|"]
+        for mode in best.modes:
+            freq = format_eng(mode.frequency_hz, "Hz", 4) if mode.rings else "does not ring"
+            lines.append(f"| {freq} | {format_eng(mode.alpha, '1/s', 4)} | {mode.zeta:.3g} | "
+                         f"{100 * mode.share:.3g} % | {md(', '.join(mode.makers))} |")
+        lines += ["", "From the exact state space of the fitted circuit; a mode is made by the "
+                  "elements that hold most of its energy.", ""]
     lines += ["## What this measurement cannot separate", ""]
     any_group = False
     for outcome in comparison.outcomes:
@@ -145,8 +156,9 @@ def markdown(comparison: Comparison, data: dict[str, Any]) -> str:
         lines.append("- Every fitted value is determined separately by this measurement.")
     lines += ["", "## Measured ring-down", ""]
     lines += _measured_lines(data["measured"])
-    lines += ["", "![Residuals per candidate](residuals.png)", "",
-              "![Envelope of the extrema](envelope.png)", ""]
+    lines += ["", "![Residuals per candidate](residuals.png)", ""]
+    if data["measured"].get("envelope_exponential") is not None:
+        lines += ["![Envelope of the extrema](envelope.png)", ""]
     lines += ["## Inputs", "", "| role | file | sha256 |", "|---|---|---|"]
     for item in data["inputs"]:
         lines.append(f"| {md(item['role'])} | {md(item['path'])} | `{md(item['sha256'])}` |")
@@ -184,8 +196,14 @@ def _measured_lines(measured: dict[str, Any]) -> list[str]:
         lines += ["", f"- event at {_eng(alignment['event_time_s'], 's')} in the file's time base"
                   f"{' (given by hand)' if alignment['manual'] else ''}; pre-event level "
                   f"{_eng(alignment['baseline_volts'], 'V')}, noise {_eng(alignment['noise_rms_volts'], 'V')} RMS"]
-    lines += ["", f"- envelope is one exponential: {'yes' if measured.get('envelope_exponential') else 'no'}",
-              f"- flagged extrema (0-based, time order): {measured.get('flagged_extrema') or 'none'}"]
+    if measured.get("time_constants_s"):
+        taus = ", ".join(f"{_eng(t['value'], 's')} ± {_eng(t['stderr'], 's')}"
+                         for t in measured["time_constants_s"])
+        lines += ["", f"- does not ring: {escape_markdown(measured.get('regime'))}, time "
+                  f"constants {taus}"]
+    else:
+        lines += ["", f"- envelope is one exponential: {'yes' if measured.get('envelope_exponential') else 'no'}",
+                  f"- flagged extrema (0-based, time order): {measured.get('flagged_extrema') or 'none'}"]
     for finding in measured.get("notes", []) or measured.get("findings", []):
         lines.append(f"- {escape_markdown(finding)}")
     return lines

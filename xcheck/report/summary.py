@@ -15,10 +15,17 @@
   ``damped_frequency_hz``, ``neper_frequency_per_s``, ``engines`` {theory, ngspice: {rmse,
   nrmse, max_error, aic, bic, damped_frequency_error_hz, neper_frequency_error_per_s} or
   null}, ``engine_disagreement`` (max |ngspice - theory| / amplitude),
-  ``undetermined`` (list of {members, combination, value, stderr, unit, reason})}
+  ``undetermined`` (list of {members, combination, value, stderr, unit, reason}),
+  ``modes`` (list, largest share first, of {frequency_hz, neper_frequency_per_s,
+  damping_ratio, share, made_by}: the fitted circuit's natural modes from the exact
+  engine)}; ``damped_frequency_hz`` and ``neper_frequency_per_s`` are the
+  dominant ringing mode's (null when none rings)
 - ``measured``: {``kind``, ``damped_frequency_hz``, ``neper_frequency_per_s``,
-  ``initial_volts`` (each {value, stderr}), ``envelope_exponential`` (bool),
-  ``flagged_extrema`` (0-based indices in time order), ``findings``, ``alignment``}
+  ``initial_volts`` (each {value, stderr}), ``regime`` ("underdamped", or for a record
+  that does not ring "overdamped", "critically damped", "first order"),
+  ``time_constants_s`` (list of {value, stderr}, slowest first; null when it rings),
+  ``envelope_exponential`` (bool; null when it does not ring), ``flagged_extrema``
+  (0-based indices in time order), ``findings``, ``alignment``}
 - ``inputs``: list of {role, path, sha256}; ``versions``; ``seeds``; ``safety``.
 All numbers are SI (s, V, ohm, H, F, Hz, 1/s); non-finite numbers are written as null.
 Numbers are written to :data:`SIGNIFICANT_DIGITS` significant digits, so that the same
@@ -100,7 +107,9 @@ def _engine_json(metrics: EngineMetrics | None) -> dict[str, Any] | None:
 def _candidate_json(outcome: CandidateOutcome) -> dict[str, Any]:
     fit = outcome.fit
     theory = outcome.theory
-    second = outcome.second_order
+    # The dominant ringing mode of the exact engine (the closed form's numbers where it
+    # applies are the same to its accuracy).
+    ring = next((m for m in outcome.modes if m.rings), None)
     return {
         "name": outcome.name,
         "description": outcome.candidate.description,
@@ -117,8 +126,14 @@ def _candidate_json(outcome: CandidateOutcome) -> dict[str, Any]:
         "fitted": {v.label: _finite(v.value) for v in fit.fitted},
         "fitted_stderr": {v.label: _finite(v.stderr) for v in fit.fitted},
         "series_resistance_ohm": _finite(outcome.series_resistance_ohm),
-        "damped_frequency_hz": _finite(second.omega_d / (2 * math.pi)) if second else None,
-        "neper_frequency_per_s": _finite(second.alpha) if second else None,
+        "damped_frequency_hz": _finite(ring.frequency_hz) if ring else None,
+        "neper_frequency_per_s": _finite(ring.alpha) if ring else None,
+        "modes": [
+            {"frequency_hz": _finite(m.frequency_hz), "neper_frequency_per_s": _finite(m.alpha),
+             "damping_ratio": _finite(m.zeta), "share": _finite(m.share),
+             "made_by": list(m.makers)}
+            for m in outcome.modes
+        ],
         "engines": {"theory": _engine_json(outcome.theory), "ngspice": _engine_json(outcome.ngspice)},
         "engine_disagreement": _finite(outcome.engine_disagreement),
         "undetermined": [
