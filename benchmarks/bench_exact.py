@@ -113,6 +113,13 @@ def rows(sets: int = 1000, spice_runs: int = 20) -> list[Row]:
         circuit = make()
         spice, exact, own, gap, points = measure(circuit, sets, spice_runs)
         ratio = spice / exact
+        reason = ""
+        if ratio < SPEED_GOAL:
+            reason = ("; likely reason: " + (
+                f"a batch of {sets} does not amortise the engine's fixed cost per call"
+                if sets < 100 else
+                "the run returns many time points, each costing the exact engine memory "
+                "traffic, while ngspice's cost per point falls on long runs"))
         out.append(Row(
             key, f"exact engine vs ngspice, time per run ({circuit.title})", f">= {SPEED_GOAL:g}x",
             f"one ngspice run of the same circuit ({spice_runs} runs timed)", f"{ratio:.1f}x",
