@@ -170,3 +170,25 @@ def test_overdamped_discharge_capacitance_is_recovered(tmp_path: Path) -> None:
     value = best.get("C1.value", fitted["C1.value"])
     assert abs(value.value - c) < 3 * value.stderr
     assert "does not ring" in result.verdict
+
+
+def test_a_missing_mode_adds_a_structural_rung_that_finds_it(tmp_path: Path) -> None:
+    # The ESL capture again, but the fixture states neither the ESL nor the
+    # capacitance across L1: the default ladder cannot contain the 3 MHz mode, the
+    # residuals ring there (matrix pencil), and a rung adding both values finds them
+    # within 3 standard errors of the values the capture was made with.
+    c, esr, esl, cw, l, dcr, v0 = 1e-6, 0.05, 100e-9, 27e-9, 22e-6, 0.3, 12.0
+    a = np.array([[0, -1 / c, 0, 0], [1 / esl, -esr / esl, -1 / esl, 0],
+                  [0, 1 / cw, 0, -1 / cw], [0, 0, 1 / l, -dcr / l]])
+    trace = _capture(tmp_path / "esl.csv", a, np.array([0, 0, -1.0, 0]), np.array([v0, 0, 0, 0]),
+                     rate=50e6, span=130e-6, before=13e-6, level_before=0.0, noise=0.01, seed=11)
+    text = ESL_FIXTURE.replace('esl = "?"\n', "").replace('parallel_capacitance = "27n"\n', "")
+    result = run_comparison(parse_fixture_text(text, "bare.toml"), trace=trace, use_ngspice=False)
+    best = result.best
+    assert best.name == "as-measured+C1.esl+L1.parallel_capacitance"
+    fitted = {v.label: v for v in best.fit.fitted}
+    for label, truth in (("C1.esl", esl), ("L1.parallel_capacitance", cw)):
+        assert abs(fitted[label].value - truth) < 3 * fitted[label].stderr, label
+    assert "a mode the circuit lacks" in result.verdict
+    assert "NO candidate explains" not in result.verdict
+    assert "inverted" not in result.verdict  # the polarity check follows the stated circuit

@@ -166,7 +166,7 @@ def test_snubber_jumps_by_the_load_current_times_its_resistance() -> None:
     """KVL at t = 0+: the 2 A in the stray inductance is continuous and the snubber
     capacitor starts empty, so the switch voltage starts at I0 (Rs + ESR) and ends at
     the supply voltage (no DC current through the capacitor)."""
-    circuit, spice = _ngspice_run("rc_snubber_switch")
+    _, spice = _ngspice_run("rc_snubber_switch")
     parts = _fixture("rc_snubber_switch").parts
     i0 = parts["Ls"].initial
     jump = i0 * (parts["Rs"].nominal + parts["Cs"].parasitics["esr"])

@@ -34,7 +34,8 @@ from xcheck.fixture.model import Fixture
 from xcheck.measured import Measured, display_path, measure
 from xcheck.fitting.rank import Ranked, rank_by_bic
 from xcheck.outcome import CandidateOutcome, Comparison, EngineMetrics, InputFile
-from xcheck.verdict import write_loop_findings, write_verdict
+from xcheck.fitting.structure import second_mode, structural_rungs
+from xcheck.verdict import MISFIT_LIMIT, write_loop_findings, write_verdict
 
 #: Longest record the fit evaluates (points); longer traces are decimated evenly.
 MAX_FIT_POINTS = 20_000
@@ -94,6 +95,11 @@ def run_comparison(
     for index, candidate in enumerate(candidates, 1):
         say(f"fitting candidate {index}/{len(candidates)}: {candidate.name}")
         fits.append(fit_candidate(fixture, candidate, observation))
+    rungs = _structural_rungs(fixture, candidates, fits, measured, observation)
+    for index, candidate in enumerate(rungs, 1):
+        say(f"fitting structural candidate {index}/{len(rungs)}: {candidate.name}")
+        fits.append(fit_candidate(fixture, candidate, observation))
+    candidates = candidates + rungs
     ranking = rank_by_bic(
         [f.candidate for f in fits], [f.bic for f in fits], [f.failed for f in fits]
     )
@@ -118,6 +124,30 @@ def run_comparison(
     verdict = write_verdict(fixture, measured, ordered, loop_findings)
     return Comparison(fixture, measured, observation, tuple(ordered), verdict, tuple(inputs),
                       loop_findings, {}, version)
+
+
+def _structural_rungs(fixture: Fixture, candidates: list[Candidate], fits: list[FitResult],
+                      measured: Measured, obs: Observation) -> list[Candidate]:
+    """Rungs that add a missing mode (:mod:`xcheck.fitting.structure`), when the best
+    fit so far misses by more than :data:`~xcheck.verdict.MISFIT_LIMIT` times the noise
+    and its residuals ring apart from the main ring; none otherwise."""
+    usable = [(c, f) for c, f in zip(candidates, fits) if not f.failed and f.parameters]
+    if obs.discrete or not usable:
+        return []
+    base, fit = min(usable, key=lambda item: item[1].bic)
+    if fit.residuals is None or fit.n <= fit.k or measured.misfit_ratio(fit) <= MISFIT_LIMIT:
+        return []
+    circuit = build_circuit(fixture, fit.parameters)
+    engine = ExactEngine(circuit)
+    model_ring = dominant_ring(engine, engine.model())
+    main = max(2 * math.pi * measured.damped_frequency_hz.value,
+               model_ring[0] if model_ring is not None else 0.0)
+    mode = second_mode(obs.time, fit.residuals, main)
+    if mode is None:
+        return []
+    inductances = [e.value for e in circuit.elements if e.kind == "L"]
+    capacitances = [e.value for e in circuit.elements if e.kind == "C"]
+    return structural_rungs(fixture, base, fit.parameters, mode, (inductances, capacitances))
 
 
 def _ngspice_version() -> str:

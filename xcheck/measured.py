@@ -261,10 +261,10 @@ def _time_scatter(time: np.ndarray, period: float, resolution: float | None = No
 
 
 def _expected_sign(fixture: Fixture) -> int | None:
-    """The sign of the event's excursion the fixture predicts: the step's, or the
-    probed part's initial voltage; otherwise (a node-pair or current probe, a source
-    part) from the exact engine on the stated values, the sign of the swing from the
-    start to the settled level (None when the stated values do not build a circuit)."""
+    """The sign of the event's excursion the fixture predicts, as the alignment counts
+    it: the step's, or the probed part's initial voltage; otherwise (a node-pair or
+    current probe, a source part, a part with no initial value) from the exact engine
+    on the stated values (None when they do not build a circuit)."""
     part = fixture.probed_part
     if fixture.response == "step" and fixture.step is not None:
         return int(np.sign(fixture.step.volts)) or None
@@ -272,32 +272,62 @@ def _expected_sign(fixture: Fixture) -> int | None:
         return int(np.sign(part.initial))
     from xcheck.circuit.expand import build_circuit
     from xcheck.circuit.parameters import parameters_from_fixture
-    from xcheck.engines.exact import ExactEngine, dominant_ring
     from xcheck.errors import XcheckError
 
     try:
         circuit = build_circuit(fixture, parameters_from_fixture(fixture))
-        engine = ExactEngine(circuit)
-        model = engine.model()
-        poles = np.linalg.eigvals(model.a[0])
-        slowest = float(np.min(-poles.real)) if poles.size else 0.0
-        if not slowest > 0:
-            return None
-        start, settled = engine.signal(np.array([0.0, 60.0 / slowest]), model)[0]
-        ring = dominant_ring(engine, model)
-        span = math.pi / ring[0] if ring is not None else 5.0 / slowest
-        early = engine.signal(np.linspace(0.0, span, 401), model)[0] - start
+        return _predicted_sign(circuit)
     except (XcheckError, ValueError, np.linalg.LinAlgError):
         return None
-    swing = settled - start if fixture.response == "step" else start - settled
+
+
+def _level_before(circuit) -> float:
+    """The probe's reading before the event: only the charged capacitors hold a
+    voltage and no current flows (the loop is still open), so a voltage probe reads
+    the capacitor voltages along a path between its nodes (through a capacitor where
+    one joins the same two nodes) and a current probe reads 0."""
+    import networkx as nx
+
+    if circuit.probe_current is not None:
+        return 0.0
+    graph = nx.Graph()
+    for element in circuit.elements:
+        a, b = element.nodes
+        here = graph.get_edge_data(a, b)
+        if here is None or (element.kind == "C" and here["element"].kind != "C"):
+            graph.add_edge(a, b, element=element)
+    plus, minus = circuit.probe
+    path = nx.shortest_path(graph, plus, minus)
+    level = 0.0
+    for here, there in zip(path[:-1], path[1:]):
+        element = graph[here][there]["element"]
+        if element.kind == "C" and element.initial:
+            level += element.initial if element.nodes == (here, there) else -element.initial
+    return level
+
+
+def _predicted_sign(circuit) -> int | None:
+    """From the exact response: the first swing away from the level before the event
+    (its largest excursion within the dominant ring's first half period, or five
+    time constants of a response that does not ring). A natural response counts the
+    start above the level it swings towards, so a downward first swing is positive."""
+    from xcheck.engines.exact import ExactEngine, dominant_ring
+
+    engine = ExactEngine(circuit)
+    model = engine.model()
+    poles = np.linalg.eigvals(model.a[0])
+    slowest = float(np.min(-poles.real)) if poles.size else 0.0
+    if not slowest > 0:
+        return None
+    ring = dominant_ring(engine, model)
+    span = math.pi / ring[0] if ring is not None else 5.0 / slowest
+    before = 0.0 if circuit.response == "step" or circuit.starts_settled else _level_before(circuit)
+    if circuit.starts_settled:
+        before = float(engine.signal(np.array([0.0]), model)[0, 0])
+    early = engine.signal(np.linspace(0.0, span, 401), model)[0] - before
     first = float(early[np.argmax(np.abs(early))])
-    if abs(swing) < 1e-3 * abs(first):
-        # Starts and settles at one level (a probe across an inductor): from the first
-        # swing, within the dominant ring's first half period, counted as the
-        # alignment counts it (a natural response's excursion is the start above the
-        # settled level, so a first swing downwards means a positive one).
-        swing = first if fixture.response == "step" else -first
-    return int(np.sign(swing)) or None
+    sign = int(np.sign(first))
+    return (sign if circuit.response == "step" else -sign) or None
 
 
 def measure(

@@ -79,6 +79,10 @@ class Candidate:
     parameters: ParameterSet
     free: tuple[FreeParameter, ...] = ()
     problems: tuple[str, ...] = field(default=())
+    #: Pairs of free values (indices into ``free``) whose product the fit's start scan
+    #: holds at the given value while it scans the first: an added inductance and
+    #: capacitance that must ring together at a frequency the residuals show.
+    scan_pairs: tuple[tuple[int, int, float], ...] = ()
 
     @property
     def usable(self) -> bool:

@@ -153,7 +153,8 @@ SCAN_MAX_POINTS = 1200
 
 
 def _scanned_start(model: CandidateModel, obs: Observation, start: np.ndarray,
-                   lower: np.ndarray, upper: np.ndarray) -> np.ndarray:
+                   lower: np.ndarray, upper: np.ndarray,
+                   pairs: tuple[tuple[int, int, float], ...] = ()) -> np.ndarray:
     """Start values improved by scanning each widely bounded free value (traces).
 
     A value known only within decades (an ESL written ``"?"``) makes the residual
@@ -187,6 +188,19 @@ def _scanned_start(model: CandidateModel, obs: Observation, start: np.ndarray,
             residual = np.sum((shapes * gain[:, None] + np.outer(offset, weight) - target) ** 2, axis=1)
         return np.where(np.isfinite(residual), residual, np.inf)
 
+    for first, second, product in pairs:
+        # Along the curve value_1 * value_2 = product (a mode at a known frequency).
+        count = min(SCAN_MAX_POINTS, int(math.ceil(
+            math.log(upper[first] / max(lower[first], upper[first] * 1e-6)) / math.log(SCAN_RATIO))) + 1)
+        trials = np.repeat(best[None, :], count, axis=0)
+        trials[:, first] = np.geomspace(max(lower[first], upper[first] * 1e-6), upper[first], count)
+        trials[:, second] = np.clip(product / trials[:, first], lower[second], upper[second])
+        try:
+            scores = costs(trials)
+        except (XcheckError, ValueError, FloatingPointError, np.linalg.LinAlgError):
+            continue
+        if np.min(scores) < costs(best[None, :])[0]:
+            best = trials[int(np.argmin(scores))]
     for k in range(len(start)):
         top = upper[k]
         bottom = lower[k] if lower[k] > 0 else top * 1e-4
@@ -213,7 +227,11 @@ def _fit(fixture: Fixture, candidate: Candidate, obs: Observation,
     scale = np.maximum(np.abs(start), (upper - lower) * 1e-3)
     scale = np.where(scale > 0, scale, 1.0)
     readings = obs.residuals(model, start)
-    start = _scanned_start(model, obs, start, lower, upper)
+    index = {f.key: k for k, f in enumerate(free)}
+    keys = [f.key for f in candidate.free]
+    pairs = tuple((index[keys[a]], index[keys[b]], p) for a, b, p in candidate.scan_pairs
+                  if keys[a] in index and keys[b] in index)
+    start = _scanned_start(model, obs, start, lower, upper, pairs)
     readings = obs.residuals(model, start)
     x0 = np.concatenate([start / scale, readings.start])
     lo = np.concatenate([lower / scale, readings.lower])
