@@ -122,7 +122,8 @@ def test_the_misfit_limit_is_three_times_the_noise(lossy_fixture, explained, tim
     rms = float(np.sqrt(np.mean(explained.best.fit.residuals**2)))
     measured = explained.measured
     quieter = replace(measured, estimate=replace(measured.estimate,
-                                                 noise_sigma=rms / times_noise))
+                                                 noise_sigma=rms / times_noise),
+                      instrument_noise=rms / times_noise)
     text = _verdict(lossy_fixture, explained, quieter)
     assert text.startswith("NO candidate explains") is called_out
     if called_out:
@@ -166,7 +167,7 @@ def test_a_value_stopped_at_zero_is_called_so(lossy_fixture) -> None:
                         "ohm", 0.0, 0.0, 10.0)
     assert value.at_bound
     text = _bound_sentence(lossy_fixture, value)
-    assert "stopped at its lower bound of 0" in text and "cannot be negative" in text
+    assert "stopped at its lower bound of 0" in text and "no physical value can be" in text
     inside = FittedValue("loop.extra_resistance", ("loop", "extra_resistance"), 0.3, 1e-3,
                          "ohm", 0.0, 0.0, 10.0)
     assert not inside.at_bound

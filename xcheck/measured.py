@@ -93,6 +93,9 @@ class Measured(ABC):
     findings: tuple[str, ...]
     notes: tuple[str, ...] = ()
     time_resolution: float | None = None
+    #: The instrument's noise (V): the pre-event scatter, with the converter's
+    #: quantisation (q^2 / 12) where the baseline hides it; None without a baseline.
+    instrument_noise: float | None = None
 
     @property
     def aperiodic(self) -> bool:
@@ -214,9 +217,8 @@ class MeasuredTrace(Measured):
         scatter where the record has one (the estimate's noise level can be its own
         residuals, which an unmodelled second mode inflates)."""
         noise = self.estimate.noise_sigma
-        if self.alignment is not None and self.alignment.pre_event_samples > 10 \
-                and self.alignment.noise_rms > 0:
-            noise = self.alignment.noise_rms
+        if self.instrument_noise:
+            noise = self.instrument_noise
         return fit.rmse / noise if noise > 0 else float("inf")
 
 
@@ -390,8 +392,17 @@ def measure(
     else:
         notes.extend(estimate.envelope.findings)
         findings.extend(_envelope_findings(estimate))
+    instrument = None
+    if alignment.pre_event_samples > 10 and math.isfinite(alignment.noise_rms) \
+            and alignment.noise_rms > 0:
+        instrument = alignment.noise_rms
+        if found.resolution and found.resolution > instrument:
+            # As the estimator counts it: a quiet baseline sits in one converter code,
+            # a moving signal carries about q / sqrt(12) of quantisation noise.
+            instrument = math.hypot(instrument, found.resolution / math.sqrt(12.0))
     return MeasuredTrace(str(trace), found.time, found.voltage, excluded, None, estimate,
-                         alignment, tuple(findings), tuple(notes))
+                         alignment, tuple(findings), tuple(notes),
+                         instrument_noise=instrument)
 
 
 def _envelope_findings(estimate: RingdownEstimate) -> tuple[str, ...]:

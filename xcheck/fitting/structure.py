@@ -35,6 +35,10 @@ ABOVE_MAIN = 1.5
 #: A parasitic is at most this fraction of the smallest main inductance or capacitance
 #: (a parasitic that large would be a part, and the fixture would name it).
 PARASITIC_SHARE = 0.1
+#: A residual oscillation counts only when it explains at least this share of the
+#: residuals' sum of squares where it was found (a misfitted decay leaves residuals at
+#: the main frequency, which a spurious fast pair does not explain).
+EXPLAINED_SHARE = 0.3
 #: The range of a rung's free value spans this factor either side of the values that
 #: put a mode at the residuals' frequency.
 RANGE_FACTOR = 10.0
@@ -92,7 +96,9 @@ def second_mode(time: np.ndarray, residuals: np.ndarray, main_omega: float) -> R
             decay = np.exp(-alpha * (t - t[0]))
             design = np.column_stack([decay * np.cos(omega * t), decay * np.sin(omega * t)])
             coef, *_ = np.linalg.lstsq(design, r, rcond=None)
-            found.append(ResidualMode(omega, alpha, float(np.hypot(*coef))))
+            explained = 1.0 - float(np.sum((r - design @ coef) ** 2)) / max(float(np.sum(r**2)), 1e-300)
+            if explained >= EXPLAINED_SHARE:
+                found.append(ResidualMode(omega, alpha, float(np.hypot(*coef))))
     return max(found, key=lambda m: m.amplitude) if found else None
 
 

@@ -55,6 +55,8 @@ class FileRingdown:
         A peak table's stated uncertainty of each reading (V), or None.
     time_resolution
         A peak table's reading step of the time column (s), or None.
+    resolution
+        A trace's converter step (V), or None.
     """
 
     source: str
@@ -67,6 +69,7 @@ class FileRingdown:
     column: str | None = None
     uncertainty: np.ndarray | None = None
     time_resolution: float | None = None
+    resolution: float | None = None
 
     @property
     def is_peak_table(self) -> bool:
@@ -145,4 +148,4 @@ def ringdown_from_file(
     )
     return FileRingdown(str(path), estimate, np.asarray(aligned.time),
                         np.asarray(aligned.voltage), np.asarray(aligned.clipped), alignment,
-                        trace.source, trace.column)
+                        trace.source, trace.column, resolution=trace.resolution)
