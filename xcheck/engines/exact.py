@@ -117,6 +117,7 @@ class ExactEngine:
         self.schedule = source_schedule(self.topology)
         self.names = tuple(e.name for e in self.topology.elements)
         self._index = {name: k for k, name in enumerate(self.names)}
+        self._cached_modes: tuple[BatchModel, _Modes] | None = None
 
     def index_of(self, name: str) -> int:
         """Column of element ``name`` in a batch of values."""
@@ -169,76 +170,25 @@ class ExactEngine:
         out = np.zeros((n_batch, times.size, project.shape[-1]))
         if n_x == 0:
             return out
-        lam, vec = np.linalg.eig(model.a)
-        lam, vec = lam.astype(complex), vec.astype(complex)  # real when nothing rings
-        with np.errstate(all="ignore"):
-            condition = np.linalg.cond(vec)
-        good = np.isfinite(condition) & (condition < MODAL_CONDITION_LIMIT)
-        rows = np.flatnonzero(good)
+        modes = self._modes(model)
+        rows = np.flatnonzero(modes.good)
         step = max(1, CHUNK_ELEMENTS // max(1, times.size * n_x))
         for start in range(0, rows.size, step):
             chunk = rows[start:start + step]
-            out[chunk] = self._modal(times, model, lam[chunk], vec[chunk], chunk,
-                                     project[chunk])
-        for row in np.flatnonzero(~good):
+            out[chunk] = _modal_sum(times, modes, chunk, project[chunk])
+        for row in np.flatnonzero(~modes.good):
             out[row] = self._stepped(times, model, row) @ project[row]
         return out
 
-    def _modal(self, times: np.ndarray, model: BatchModel, lam: np.ndarray,
-               vec: np.ndarray, rows: np.ndarray, project: np.ndarray) -> np.ndarray:
-        """Modal sum for the rows whose eigenvectors are well conditioned."""
-        solve = np.linalg.solve
-        coefficient = solve(vec, model.x0[rows].astype(complex)[..., None])[..., 0]
-        # For lambda != 0, phi(s) w = (e^{lambda s} - 1) w / lambda: the switch-on at
-        # t = 0 folds into the coefficient of e^{lambda t}, a constant remains; a zero
-        # root (a node floating between capacitors) integrates to s w instead.
-        constant = np.zeros_like(coefficient)
-        zero = lam == 0
-        safe = np.where(zero, 1.0, lam)
-        later: list[tuple[float, np.ndarray]] = []
-        previous = np.zeros(len(self.topology.inputs))
-        ramp = np.zeros_like(coefficient)
-        for tau, pattern in zip(self.schedule.times, self.schedule.on):
-            change, previous = pattern - previous, pattern
-            if not np.any(change):
-                continue
-            du = model.u[rows] * change
-            w = solve(vec, (model.b[rows] @ du[..., None]).astype(complex))[..., 0]
-            if tau == 0:
-                coefficient = coefficient + np.where(zero, 0.0, w / safe)
-                constant = constant - np.where(zero, 0.0, w / safe)
-                ramp = ramp + np.where(zero, w, 0.0)
-            else:
-                later.append((float(tau), w))
-        # Each mode's weight in each output, and one of each conjugate pair only: the
-        # states are real, so a pair contributes twice the real part of one member.
-        weight = np.einsum("bjk,bjq->bqk", vec, project.astype(complex))
-        keep, factor = _one_per_pair(lam)
-        lam = np.take_along_axis(lam, keep, 1)
-        weight = np.take_along_axis(weight, keep[:, None, :], 2) * factor[:, None, :]
-
-        def kept(x: np.ndarray) -> np.ndarray:
-            return np.take_along_axis(x, keep, 1)[:, None, :] * weight  # (batch, q, k)
-
-        # Re(g e^{lambda t}) = e^{sigma t} (Re g cos(omega t) - Im g sin(omega t)), in
-        # real arithmetic (numpy's real exp, cos and sin are vectorised; complex exp is
-        # not), and the constant and ramp terms summed over the modes once.
-        out = _oscillations(lam, kept(coefficient), times)
-        out += np.real(np.sum(kept(constant), axis=2))[:, None, :]
-        if np.any(ramp):
-            out += np.real(np.sum(kept(ramp), axis=2))[:, None, :] * times[None, :, None]
-        zero = np.take_along_axis(zero, keep, 1)
-        safe = np.where(zero, 1.0, lam)
-        for tau, w in later:
-            w = np.take_along_axis(w, keep, 1)
-            s = np.clip(times - tau, 0.0, None)
-            # phi(s) w = (e^{lambda s} - 1) w / lambda, or s w at a zero root.
-            h = np.where(zero, 0.0, w / safe)[:, None, :] * weight
-            out += _oscillations(lam, h, s) - np.real(np.sum(h, axis=2))[:, None, :]
-            ramp_w = np.where(zero, w, 0.0)
-            if np.any(ramp_w):
-                out += np.real(np.sum(ramp_w[:, None, :] * weight, axis=2))[:, None, :] * s[None, :, None]
-        return out
+    def _modes(self, model: BatchModel) -> "_Modes":
+        """The modal decomposition of ``model`` (kept for the last model asked, which a
+        fit asks again for each derivative and turning point)."""
+        cached = self._cached_modes
+        if cached is not None and cached[0] is model:
+            return cached[1]
+        modes = _decompose(model, self.schedule, len(self.topology.inputs))
+        self._cached_modes = (model, modes)
+        return modes
 
     def _stepped(self, times: np.ndarray, model: BatchModel, row: int) -> np.ndarray:
         """Matrix-exponential stepping for one ill-conditioned value set."""
@@ -281,17 +231,31 @@ class ExactEngine:
         """``(batch, len(times))`` exact ``signal`` (see :meth:`output_map`) or its
         ``derivative``-th time derivative (sources constant between switching times).
         """
+        return self.signals(times, model, signal, (derivative,))[..., 0]
+
+    def signals(self, times: np.ndarray, model: BatchModel, signal: str = "probe",
+                derivatives: tuple[int, ...] = (0,)) -> np.ndarray:
+        """``(batch, len(times), len(derivatives))``: ``signal`` and its time
+        derivatives of the given orders, from one modal evaluation."""
         out_map = self.output_map(model, signal)
         row, u_row = out_map.x_coef, out_map.u_coef  # y = row x + u_row u
-        for _ in range(derivative):
+        rows, u_rows = [], []
+        for order in range(max(derivatives) + 1):
+            if order in derivatives:
+                rows.append(row)
+                u_rows.append(u_row)
             # d/dt (r x + q u) = r A x + r B u between switching times (u constant).
             row, u_row = np.einsum("bx,bxj->bj", row, model.a), np.einsum("bx,bxu->bu", row, model.b)
-        values = self._projected(times, model, row[:, :, None])[..., 0]
+        order_index = sorted(derivatives)
+        project = np.stack(rows, axis=2)  # (batch, n, q) in increasing order
+        values = self._projected(times, model, project)
         # The sources' direct part: one number per value set and switching segment.
         times = np.asarray(times, dtype=float)
         segment = np.clip(np.searchsorted(self.schedule.times, times, side="right") - 1, 0, None)
-        direct = (u_row * model.u) @ self.schedule.on.T  # (batch, segments)
-        return values + direct[:, segment]
+        for q, u_q in enumerate(u_rows):
+            direct = (u_q * model.u) @ self.schedule.on.T  # (batch, segments)
+            values[:, :, q] += direct[:, segment]
+        return values[:, :, [order_index.index(d) for d in derivatives]]
 
     def response(self, times: np.ndarray, values: np.ndarray | None = None,
                  initials: np.ndarray | None = None, signal: str = "probe") -> np.ndarray:
@@ -312,6 +276,102 @@ class ExactEngine:
     def poles(self, values: np.ndarray | None = None) -> np.ndarray:
         """``(batch, n_states)`` natural frequencies (1/s)."""
         return np.linalg.eigvals(self.model(values).a)
+
+
+@dataclass(frozen=True)
+class _Modes:
+    """A batch's modal decomposition, one member of each conjugate pair kept.
+
+    ``lam`` (batch, k) roots; ``vec`` (batch, n, k) their eigenvectors; ``factor``
+    (batch, k) 2 for a pair, 1 for a real root, 0 for padding; ``good`` (batch,) rows
+    whose eigenvectors are well conditioned; ``coefficient``, ``constant``, ``ramp``
+    (batch, k) the response's terms e^{lam t}, 1 and t from t = 0 on; ``later`` the
+    (switching time, weight) of each later source change.
+    """
+
+    lam: np.ndarray
+    vec: np.ndarray
+    factor: np.ndarray
+    good: np.ndarray
+    coefficient: np.ndarray
+    constant: np.ndarray
+    ramp: np.ndarray
+    later: tuple[tuple[float, np.ndarray], ...]
+
+
+def _decompose(model: BatchModel, schedule: Schedule, n_inputs: int) -> _Modes:
+    """Eigen-decompose every row of ``model`` and express its response on the modes."""
+    lam, vec = np.linalg.eig(model.a)
+    lam, vec = lam.astype(complex), vec.astype(complex)  # real when nothing rings
+    with np.errstate(all="ignore"):
+        condition = np.linalg.cond(vec)
+    good = np.isfinite(condition) & (condition < MODAL_CONDITION_LIMIT)
+    # Solve only with the good rows' eigenvectors (the others are stepped instead).
+    safe_vec = np.where(good[:, None, None], vec, np.eye(vec.shape[1]))
+    solve = np.linalg.solve
+    coefficient = solve(safe_vec, model.x0.astype(complex)[..., None])[..., 0]
+    # For lambda != 0, phi(s) w = (e^{lambda s} - 1) w / lambda: the switch-on at t = 0
+    # folds into the coefficient of e^{lambda t}, a constant remains; a zero root (a
+    # node floating between capacitors) integrates to s w instead.
+    constant = np.zeros_like(coefficient)
+    ramp = np.zeros_like(coefficient)
+    zero = lam == 0
+    safe = np.where(zero, 1.0, lam)
+    later = []
+    previous = np.zeros(n_inputs)
+    for tau, pattern in zip(schedule.times, schedule.on):
+        change, previous = pattern - previous, pattern
+        if not np.any(change):
+            continue
+        du = model.u * change
+        w = solve(safe_vec, (model.b @ du[..., None]).astype(complex))[..., 0]
+        if tau == 0:
+            coefficient = coefficient + np.where(zero, 0.0, w / safe)
+            constant = constant - np.where(zero, 0.0, w / safe)
+            ramp = ramp + np.where(zero, w, 0.0)
+        else:
+            later.append((float(tau), w))
+    # One member of each conjugate pair: the states are real, so a pair contributes
+    # twice the real part of one member.
+    keep, factor = _one_per_pair(lam)
+
+    def kept(x: np.ndarray) -> np.ndarray:
+        return np.take_along_axis(x, keep, 1)
+
+    return _Modes(kept(lam), np.take_along_axis(vec, keep[:, None, :], 2), factor, good,
+                  kept(coefficient), kept(constant), kept(ramp),
+                  tuple((tau, kept(w)) for tau, w in later))
+
+
+def _modal_sum(times: np.ndarray, modes: _Modes, rows: np.ndarray,
+               project: np.ndarray) -> np.ndarray:
+    """``(len(rows), len(times), q)``: the modal sum projected by ``project``."""
+    lam = modes.lam[rows]
+    weight = np.einsum("bjk,bjq->bqk", modes.vec[rows], project.astype(complex))
+    weight = weight * modes.factor[rows][:, None, :]
+
+    def weighted(x: np.ndarray) -> np.ndarray:
+        return x[rows][:, None, :] * weight  # (batch, q, k)
+
+    # Re(g e^{lambda t}) summed over modes (see _oscillations), and the constant and
+    # ramp terms summed over the modes once.
+    out = _oscillations(lam, weighted(modes.coefficient), times)
+    out += np.real(np.sum(weighted(modes.constant), axis=2))[:, None, :]
+    ramp = modes.ramp[rows]
+    if np.any(ramp):
+        out += np.real(np.sum(weighted(modes.ramp), axis=2))[:, None, :] * times[None, :, None]
+    zero = lam == 0
+    safe = np.where(zero, 1.0, lam)
+    for tau, w_all in modes.later:
+        w = w_all[rows]
+        s = np.clip(times - tau, 0.0, None)
+        # phi(s) w = (e^{lambda s} - 1) w / lambda, or s w at a zero root.
+        h = np.where(zero, 0.0, w / safe)[:, None, :] * weight
+        out += _oscillations(lam, h, s) - np.real(np.sum(h, axis=2))[:, None, :]
+        ramp_w = np.where(zero, w, 0.0)
+        if np.any(ramp_w):
+            out += np.real(np.sum(ramp_w[:, None, :] * weight, axis=2))[:, None, :] * s[None, :, None]
+    return out
 
 
 def _oscillations(lam: np.ndarray, gain: np.ndarray, times: np.ndarray) -> np.ndarray:
@@ -464,13 +524,13 @@ def turning_points(engine: ExactEngine, model: BatchModel, count: int,
         local = np.flatnonzero(window)
         times[k] = grid[local[np.argmax(np.abs(values[local] - level))]]
     # Newton on the derivative from the grid point (spacing half / 64: quadratic
-    # convergence from there; six steps take it to rounding).
+    # convergence from there; four steps take it to rounding).
     inner = times[1:]
-    for _ in range(6):
+    for _ in range(4):
         if inner.size == 0:
             break
-        slope = engine.signal(inner, model, derivative=1)[0]
-        curve = engine.signal(inner, model, derivative=2)[0]
+        both = engine.signals(inner, model, derivatives=(1, 2))[0]
+        slope, curve = both[:, 0], both[:, 1]
         move = np.where(curve != 0, slope / np.where(curve == 0, 1.0, curve), 0.0)
         inner = np.clip(inner - np.clip(move, -half / 8, half / 8), 0.0, None)
     times[1:] = inner
