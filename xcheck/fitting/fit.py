@@ -154,10 +154,12 @@ SCAN_MAX_POINTS = 1200
 
 def _scanned_start(model: CandidateModel, obs: Observation, start: np.ndarray,
                    lower: np.ndarray, upper: np.ndarray,
-                   pairs: tuple[tuple[int, int, float], ...] = ()) -> np.ndarray:
+                   pairs: tuple[tuple[int, int, float], ...] = (),
+                   units: tuple[str, ...] = ()) -> np.ndarray:
     """Start values improved by scanning each widely bounded free value (traces).
 
-    A value known only within decades (an ESL written ``"?"``) makes the residual
+    A reactive value (``units`` "H" or "F") known only within decades (an ESL written
+    ``"?"``) makes the residual
     oscillate with it (a mode's frequency moves through the record's ringing), so a
     local optimiser started at a typical value stops in the nearest dip. Each such
     value in turn is scanned on a log grid (:data:`SCAN_RATIO`) across its bounds, the
@@ -202,6 +204,8 @@ def _scanned_start(model: CandidateModel, obs: Observation, start: np.ndarray,
         if np.min(scores) < costs(best[None, :])[0]:
             best = trials[int(np.argmin(scores))]
     for k in range(len(start)):
+        if units[k] not in ("H", "F"):
+            continue  # a resistance moves damping only: its residual has one dip
         top = upper[k]
         bottom = lower[k] if lower[k] > 0 else top * 1e-4
         if not (np.isfinite(top) and top > 0 and top / bottom > SCAN_SPAN):
@@ -231,7 +235,7 @@ def _fit(fixture: Fixture, candidate: Candidate, obs: Observation,
     keys = [f.key for f in candidate.free]
     pairs = tuple((index[keys[a]], index[keys[b]], p) for a, b, p in candidate.scan_pairs
                   if keys[a] in index and keys[b] in index)
-    start = _scanned_start(model, obs, start, lower, upper, pairs)
+    start = _scanned_start(model, obs, start, lower, upper, pairs, tuple(f.unit for f in free))
     readings = obs.residuals(model, start)
     x0 = np.concatenate([start / scale, readings.start])
     lo = np.concatenate([lower / scale, readings.lower])
