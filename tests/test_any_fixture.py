@@ -61,29 +61,37 @@ parallel_capacitance = "27n"
 '''
 
 
+#: The ESL capture's truth: C1, its ESR and ESL, the capacitance across L1, L1, its DCR,
+#: C1's initial voltage.
+C, ESR, ESL, CW, L, DCR, V0 = 1e-6, 0.05, 100e-9, 27e-9, 22e-6, 0.3, 12.0
+
+
+def _esl_capture(tmp_path: Path, seed: int) -> Path:
+    """x = [v_c, i, v_w, i_L]: the loop current i leaves C1's first terminal (n1, at
+    ground through the ideal switch) backwards, so C1's voltage drives it through L1 and
+    the capacitance across L1 towards C1's second terminal:
+    C v_c' = -i;  ESL i' = v_c - ESR i - v_w;  Cw v_w' = i - i_L;  L i_L' = v_w - DCR i_L.
+    The fixture probes L1's first terminal (C1's second) to ground: -v_w."""
+    a = np.array([[0, -1 / C, 0, 0], [1 / ESL, -ESR / ESL, -1 / ESL, 0],
+                  [0, 1 / CW, 0, -1 / CW], [0, 0, 1 / L, -DCR / L]])
+    return _capture(tmp_path / "esl.csv", a, np.array([0, 0, -1.0, 0]), np.array([V0, 0, 0, 0]),
+                    rate=50e6, span=130e-6, before=13e-6, level_before=0.0, noise=0.01, seed=seed)
+
+
 def test_fourth_order_esl_is_recovered_and_the_second_mode_named(tmp_path: Path) -> None:
-    c, esr, esl, cw, l, dcr, v0 = 1e-6, 0.05, 100e-9, 27e-9, 22e-6, 0.3, 12.0
-    # x = [v_c, i, v_w, i_L]: the loop current i leaves C1's first terminal (n1, at
-    # ground through the ideal switch) backwards, so C1's voltage drives it through L1
-    # and the capacitance across L1 towards C1's second terminal:
-    #   C v_c' = -i;  ESL i' = v_c - ESR i - v_w;  Cw v_w' = i - i_L;  L i_L' = v_w - DCR i_L.
-    # The fixture probes L1's first terminal (C1's second) to ground: -v_w.
-    a = np.array([[0, -1 / c, 0, 0], [1 / esl, -esr / esl, -1 / esl, 0],
-                  [0, 1 / cw, 0, -1 / cw], [0, 0, 1 / l, -dcr / l]])
-    trace = _capture(tmp_path / "esl.csv", a, np.array([0, 0, -1.0, 0]), np.array([v0, 0, 0, 0]),
-                     rate=50e6, span=130e-6, before=13e-6, level_before=0.0, noise=0.01, seed=11)
+    trace = _esl_capture(tmp_path, seed=11)
     fixture = parse_fixture_text(ESL_FIXTURE, "esl.toml")
     result = run_comparison(fixture, trace=trace, use_ngspice=False)
     assert not any(o.failed for o in result.outcomes)
     best = result.best
     fitted = {v.label: v for v in best.fit.fitted}
     assert "C1.esl" in fitted, best.name
-    assert abs(fitted["C1.esl"].value - esl) < 3 * fitted["C1.esl"].stderr
+    assert abs(fitted["C1.esl"].value - ESL) < 3 * fitted["C1.esl"].stderr
     # The second mode: ESL against the 27 nF, f = 1 / (2 pi sqrt(ESL Cw)) = 3.06 MHz
     # undamped (common practice, no source); named by the parts that make it.
     second = [m for m in best.modes if m.frequency_hz > 1e6]
     assert second and second[0].frequency_hz == pytest.approx(
-        1 / (2 * math.pi * math.sqrt(esl * cw)), rel=0.03)
+        1 / (2 * math.pi * math.sqrt(ESL * CW)), rel=0.03)
     makers = {describe_key(fixture, ("C1", "esl")), describe_key(fixture, ("L1", "parallel_capacitance"))}
     assert makers <= set(second[0].makers)
     assert second[0].sentence() in result.verdict
@@ -177,18 +185,32 @@ def test_a_missing_mode_adds_a_structural_rung_that_finds_it(tmp_path: Path) -> 
     # capacitance across L1: the default ladder cannot contain the 3 MHz mode, the
     # residuals ring there (matrix pencil), and a rung adding both values finds them
     # within 3 standard errors of the values the capture was made with.
-    c, esr, esl, cw, l, dcr, v0 = 1e-6, 0.05, 100e-9, 27e-9, 22e-6, 0.3, 12.0
-    a = np.array([[0, -1 / c, 0, 0], [1 / esl, -esr / esl, -1 / esl, 0],
-                  [0, 1 / cw, 0, -1 / cw], [0, 0, 1 / l, -dcr / l]])
-    trace = _capture(tmp_path / "esl.csv", a, np.array([0, 0, -1.0, 0]), np.array([v0, 0, 0, 0]),
-                     rate=50e6, span=130e-6, before=13e-6, level_before=0.0, noise=0.01, seed=11)
+    trace = _esl_capture(tmp_path, seed=11)
     text = ESL_FIXTURE.replace('esl = "?"\n', "").replace('parallel_capacitance = "27n"\n', "")
     result = run_comparison(parse_fixture_text(text, "bare.toml"), trace=trace, use_ngspice=False)
     best = result.best
     assert best.name == "as-measured+C1.esl+L1.parallel_capacitance"
     fitted = {v.label: v for v in best.fit.fitted}
-    for label, truth in (("C1.esl", esl), ("L1.parallel_capacitance", cw)):
+    for label, truth in (("C1.esl", ESL), ("L1.parallel_capacitance", CW)):
         assert abs(fitted[label].value - truth) < 3 * fitted[label].stderr, label
     assert "a mode the circuit lacks" in result.verdict
     assert "NO candidate explains" not in result.verdict
     assert "inverted" not in result.verdict  # the polarity check follows the stated circuit
+
+
+def test_a_fixture_can_declare_its_own_structural_candidate(tmp_path: Path) -> None:
+    # The ESL capture, the ESL now stated, the capacitance across L1 not: the fixture's
+    # own candidate adds it as a free value, and the fit finds the 27 nF the capture
+    # was made with, within 3 standard errors.
+    trace = _esl_capture(tmp_path, seed=12)
+    text = (ESL_FIXTURE.replace('esl = "?"', 'esl = "100n"')
+            .replace('parallel_capacitance = "27n"\n', "")
+            + '\n[candidates.self-capacitance]\nbase = "as-measured"\n'
+              'free = ["L1.parallel_capacitance"]\n'
+              'description = "the winding has a capacitance nobody stated"\n')
+    result = run_comparison(parse_fixture_text(text, "declared.toml"), trace=trace,
+                            use_ngspice=False)
+    own = result.outcome("self-capacitance")
+    fitted = {v.label: v for v in own.fit.fitted}["L1.parallel_capacitance"]
+    assert abs(fitted.value - CW) < 3 * fitted.stderr
+    assert result.best.name == "self-capacitance" or result.best.name.startswith("as-measured+")

@@ -334,8 +334,11 @@ def _guess(
         if other:
             start = 1.0 / (hint.omega0**2 * other)
             return start, start / 10.0, start * 10.0
+    # Nothing stated: a typical parasitic size, free from zero to the largest parasitic
+    # a bench fixture plausibly hides (common practice, no source): 100 ohm, 10 uH, 1 uF.
     typical = {"ohm": 0.1, "H": 1e-8, "F": 1e-12}.get(unit, 1.0)
-    return typical, 0.0, typical * 1e3
+    largest = {"ohm": 100.0, "H": 1e-5, "F": 1e-6}.get(unit, typical * 1e3)
+    return typical, 0.0, largest
 
 
 #: The reactance that rings against each: a capacitance against an inductance.

@@ -207,7 +207,7 @@ def _scanned_start(model: CandidateModel, obs: Observation, start: np.ndarray,
         if units[k] not in ("H", "F"):
             continue  # a resistance moves damping only: its residual has one dip
         top = upper[k]
-        bottom = lower[k] if lower[k] > 0 else top * 1e-4
+        bottom = lower[k] if lower[k] > 0 else top * 1e-6
         if not (np.isfinite(top) and top > 0 and top / bottom > SCAN_SPAN):
             continue
         count = min(SCAN_MAX_POINTS, int(math.ceil(math.log(top / bottom) / math.log(SCAN_RATIO))) + 1)
