@@ -110,7 +110,18 @@ def test_units_after_the_suffix(text: str, unit: str, expected: float) -> None:
 def test_lone_f_is_femto_as_in_spice() -> None:
     # In SPICE a lone F after the number is the femto scale factor, not farads
     # (ngspice manual, "Basic conventions", from memory): "1F" is 1e-15.
-    assert parse_value("1F", unit="F") == pytest.approx(1e-15, rel=PARSE_REL)
+    assert parse_value("1F") == pytest.approx(1e-15, rel=PARSE_REL)
+    assert parse_value("2f", unit="ohm") == pytest.approx(2e-15, rel=PARSE_REL)
+
+
+@pytest.mark.parametrize("text", ["1.12e-9F", "1F", "4.7f"])
+def test_a_lone_f_on_a_capacitance_is_refused_as_ambiguous(text: str) -> None:
+    # "1.12e-9F" meant as farads would read as 1.12e-24 F under the SPICE rule above: a
+    # capacitance asks which was meant, as an upper-case M does.
+    with pytest.raises(ValueParseError, match="ambiguous.*1.12n"):
+        parse_value(text, unit="F")
+    assert parse_value(text.rstrip("fF") + "fF", unit="F") == pytest.approx(
+        float(text.rstrip("fF")) * 1e-15, rel=PARSE_REL)
     assert parse_value("1uF", unit="F") == pytest.approx(1e-6, rel=PARSE_REL)
 
 

@@ -11,8 +11,10 @@ it as one milliohm would be a 1e9 error, so xcheck asks which was meant.
 
 After the scale suffix a unit may follow (``uF``, ``mH``, ``ohm``, ``Ω``, ``V``, ``A``,
 ``s``, ``Hz``); it is checked against the unit the caller expects, if any. As in SPICE,
-a lone ``f`` or ``F`` right after the number is femto: ``1F`` is 1e-15, write ``1``
-(no suffix) for one farad.
+a lone ``f`` or ``F`` right after the number is femto: ``1F`` is 1e-15. For a
+capacitance that reading is a second trap (``1.12e-9F`` meant as farads would become
+1.12e-24 F), so there a lone ``f``/``F`` is rejected like ``M`` and the message asks
+for ``1.12n``, ``1.12e-9`` or ``1.12fF``.
 """
 
 from __future__ import annotations
@@ -63,6 +65,11 @@ _VALUE_RE = re.compile(
 )
 _PERCENT_RE = re.compile(rf"(?:±\s*)?(?P<number>{_NUMBER})\s*%")
 
+_F_TRAP_HELP = (
+    "a lone 'F' after a capacitance is ambiguous: in SPICE it is the femto suffix (1e-15), "
+    "not farads; write the farads without a unit (e.g. '1.12e-9'), with a scale suffix "
+    "('1.12n'), or femtofarads in full ('1.12fF')"
+)
 _M_TRAP_HELP = (
     "an upper-case 'M' suffix is ambiguous: in SPICE 'm' and 'M' mean milli (1e-3) "
     "and mega is 'meg'; write e.g. '1meg' for 1e6 or '1m' for 1e-3"
@@ -119,6 +126,8 @@ def parse_value(text: str | int | float, *, unit: str | None = None) -> float:
     if suffix == "M":
         raise ValueParseError(f"{_q(text)}: {_M_TRAP_HELP}")
     found_unit = match.group("unit")
+    if unit == "F" and suffix and suffix.lower() == "f" and not found_unit:
+        raise ValueParseError(f"{_q(text)}: {_F_TRAP_HELP}")
     value = _scaled(match.group("number"), suffix.lower() if suffix else "")
     if not math.isfinite(value):
         raise ValueParseError(

@@ -37,7 +37,10 @@ def damped_model(time: np.ndarray, theta: np.ndarray) -> np.ndarray:
     for m in range(mode_count(theta)):
         alpha, omega, a, b = theta[4 * m : 4 * m + 4]
         phase = omega * time
-        out += np.exp(-alpha * time) * (a * np.cos(phase) + b * np.sin(phase))
+        with np.errstate(over="ignore", invalid="ignore"):
+            # A trial mode that grows (alpha < 0) may overflow; the optimiser then
+            # sees an infinite residual and steps back, which is all it needs.
+            out += np.exp(-alpha * time) * (a * np.cos(phase) + b * np.sin(phase))
     return out
 
 
