@@ -197,6 +197,16 @@ def _modes_sentence(outcome: CandidateOutcome) -> str:
             + "; ".join(m.sentence() for m in shown))
 
 
+def _budget_words(value: FittedValue) -> str:
+    """``"; ± 42.9 nH from the fit alone, the rest from the C1 meter reading (...)"``
+    when the fixed values add to the fit's own standard error; '' otherwise."""
+    shown = [words for words, u in value.budget if u >= 0.1 * value.uncertainty]
+    if not value.budget or not value.uncertainty > 1.05 * value.stderr or not shown:
+        return ""
+    return (f"; ± {format_eng(value.stderr, value.unit)} from the fit alone, the rest from "
+            f"the {' and the '.join(shown)} (combined as in JCGM 100, section 5)")
+
+
 def _bound_sentence(fixture: Fixture, value: FittedValue) -> str:
     """Words for a fitted value that ended on one of its bounds."""
     which = "lower" if abs(value.value - value.lower) <= abs(value.upper - value.value) else "upper"
@@ -260,7 +270,8 @@ def write_verdict(fixture: Fixture, measured: Measured, outcomes: list[Candidate
             shown = 0.0  # on the bound to rounding
         parts.append(
             f"Fitted {describe_key(fixture, value.key)} = {format_eng(shown, value.unit)} ± "
-            f"{format_eng(value.stderr, value.unit)}{_against_label(fixture, value)}."
+            f"{format_eng(value.uncertainty, value.unit)}{_against_label(fixture, value)}"
+            f"{_budget_words(value)}."
         )
         if value.at_bound:
             parts.append(_bound_sentence(fixture, value))

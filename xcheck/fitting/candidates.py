@@ -155,6 +155,18 @@ def measured_bounds(fixture: Fixture, key: ParameterKey) -> tuple[float, float, 
     """Start and bounds (measured value +/- 3 standard uncertainties) for a part value
     that a meter measured, or None when it was not measured.
 
+    See :func:`measured_uncertainty`.
+    """
+    sigma = measured_uncertainty(fixture, key)
+    if sigma is None:
+        return None
+    value = fixture.parts[key[0]].measured
+    return value, max(value - 3 * sigma, 0.0), value + 3 * sigma
+
+
+def measured_uncertainty(fixture: Fixture, key: ParameterKey) -> float | None:
+    """Standard uncertainty of a part value a meter measured (SI units), or None.
+
     Resistances use :func:`meter_uncertainty` of the reading; measured L and C use 1 %
     of the value (a typical handheld LCR meter; common practice, no source).
     """
@@ -163,10 +175,8 @@ def measured_bounds(fixture: Fixture, key: ParameterKey) -> tuple[float, float, 
         return None
     value = part.measured
     if PART_KINDS[part.kind].two_wire:
-        sigma = meter_uncertainty(part.meter.reading if part.meter else value)
-    else:
-        sigma = 0.01 * abs(value)
-    return value, max(value - 3 * sigma, 0.0), value + 3 * sigma
+        return meter_uncertainty(part.meter.reading if part.meter else value)
+    return 0.01 * abs(value)
 
 
 def meter_uncertainty(reading: float) -> float:

@@ -31,6 +31,7 @@ from xcheck.fitting.identifiability import (
     find_degeneracies,
     merge_groups,
 )
+from xcheck.fitting.fixed_values import fixed_uncertainties
 from xcheck.fitting.model import CandidateModel
 from xcheck.fitting.observation import Observation
 from xcheck.fitting.stats import correlation_from_covariance, covariance_from_jacobian
@@ -49,6 +50,16 @@ class FittedValue:
     start: float
     lower: float
     upper: float
+    #: Standard uncertainty including what the fixed values carry (GUM section 5);
+    #: equal to ``stderr`` when no fixed value carries an uncertainty.
+    combined_stderr: float = float("nan")
+    #: Each fixed value's contribution (words, standard uncertainty in this value's unit).
+    budget: tuple[tuple[str, float], ...] = ()
+
+    @property
+    def uncertainty(self) -> float:
+        """The combined standard uncertainty where known, else the fit's own."""
+        return self.combined_stderr if math.isfinite(self.combined_stderr) else self.stderr
 
     @property
     def at_bound(self) -> bool:
@@ -221,6 +232,40 @@ def _scanned_start(model: CandidateModel, obs: Observation, start: np.ndarray,
     return best
 
 
+def _fixed_value_budget(fixture: Fixture, candidate: Candidate, model: CandidateModel,
+                        free: tuple[FreeParameter, ...], physical: np.ndarray, solution,
+                        residuals, jac_x: np.ndarray, scale: np.ndarray
+                        ) -> list[tuple[tuple[str, float], ...]]:
+    """Per free value, the standard uncertainty each uncertain fixed value carries into
+    it (see :mod:`xcheck.fitting.fixed_values`): d theta / d phi from the change of the
+    weighted residuals when phi moves by a small step (central difference), through
+    the pseudo-inverse of the fit's Jacobian (GUM 5.1.2, uncorrelated inputs)."""
+    n_free = len(free)
+    budgets: list[list[tuple[str, float]]] = [[] for _ in range(n_free)]
+    items = fixed_uncertainties(fixture, candidate.parameters, {f.key for f in free})
+    if not items or n_free == 0:
+        return [tuple(b) for b in budgets]
+    inverse = np.linalg.pinv(jac_x)  # optimiser variables per weighted residual
+    for item in items:
+        step = 1e-4 * item.sigma
+        try:
+            model.nudged(item.key, item.value + step)
+            up = residuals(solution.x)
+            model.nudged(item.key, item.value - step)
+            down = residuals(solution.x)
+        except (XcheckError, ValueError, FloatingPointError, np.linalg.LinAlgError):
+            continue
+        finally:
+            model.restore()
+        slope = (up - down) / (2 * step)
+        moved = -(inverse @ slope)[:n_free] * scale  # physical units per unit of phi
+        for k in range(n_free):
+            contribution = abs(float(moved[k])) * item.sigma
+            if np.isfinite(contribution):
+                budgets[k].append((item.words, contribution))
+    return [tuple(b) for b in budgets]
+
+
 def _fit(fixture: Fixture, candidate: Candidate, obs: Observation,
          free: tuple[FreeParameter, ...]) -> FitResult:
     model = CandidateModel(fixture, candidate, free)
@@ -270,9 +315,12 @@ def _fit(fixture: Fixture, candidate: Candidate, obs: Observation,
     physical_scale = np.concatenate([scale, np.ones(k - n_free)])
     cov = cov_x * np.outer(physical_scale, physical_scale)
     stderr = np.sqrt(np.clip(np.diag(cov), 0.0, None))
+    budgets = _fixed_value_budget(fixture, candidate, model, free, physical, solution, residuals,
+                                  jac_x, scale)
     fitted = tuple(
-        FittedValue(f.label, f.key, float(v), float(s), f.unit, float(f.start), f.lower, f.upper)
-        for f, v, s in zip(free, physical, stderr[:n_free])
+        FittedValue(f.label, f.key, float(v), float(s), f.unit, float(f.start), f.lower, f.upper,
+                    float(math.sqrt(s**2 + sum(u**2 for _, u in budget))), budget)
+        for f, v, s, budget in zip(free, physical, stderr[:n_free], budgets)
     )
     model_values = readings.predicted(physical, solution.x[n_free:])
     residual_volts = obs.voltage - model_values

@@ -249,23 +249,26 @@ def evaluate_groups(groups: Sequence[Degeneracy], fitted: Sequence,
     Returns
     -------
     tuple of Degeneracy
-        A sum's value is the members' sum, with the free member's standard error; a
-        product's the members' product, with the free member's relative standard
-        error; anything else NaN.
+        A sum's value is the members' sum, with the free member's uncertainty (its
+        ``uncertainty`` when it has one: combined with the fixed values'); a product's
+        the members' product, with the free member's relative uncertainty; anything
+        else NaN.
     """
     values = {f.label: f for f in fitted}
     out = []
     for group in groups:
         members = list(group.members)
         first = values.get(members[0])
-        stderr = first.stderr if first is not None else float("nan")
+        # The free member's uncertainty, with what the fixed values carry (GUM
+        # section 5) where the fit worked it out.
+        stderr = getattr(first, "uncertainty", first.stderr) if first is not None else float("nan")
         member_values = ([parameters.get(label_key(m), 0.0) or 0.0 for m in members]
                          if parameters else [])
         if group.combination == "sum":
             combined = float(sum(member_values))
         elif group.combination == "product":
             combined = float(np.prod(member_values))
-            stderr = combined * (first.stderr / first.value) if first and first.value else float("nan")
+            stderr = combined * (stderr / first.value) if first and first.value else float("nan")
         else:
             combined = float("nan")
         out.append(

@@ -53,6 +53,8 @@ class CandidateModel:
         self.candidate = candidate
         self.free = free
         self.evaluations = 0
+        #: Fixed values changed for a sensitivity (key -> SI value); see :meth:`nudged`.
+        self.overrides: dict[tuple[str, str], float] = {}
         base = np.array([_placeholder(f) for f in free], float)
         circuit = self.circuit(base)
         self.engine = ExactEngine(circuit)
@@ -65,9 +67,31 @@ class CandidateModel:
 
     def parameters(self, physical: np.ndarray) -> ParameterSet:
         """The candidate's parameter set with ``physical`` free values."""
-        return self.candidate.parameters.with_values(
+        base = self.candidate.parameters
+        if self.overrides:
+            base = base.with_values(dict(self.overrides), "nudged for a sensitivity")
+        return base.with_values(
             {f.key: float(v) for f, v in zip(self.free, physical)}
         )
+
+    def nudged(self, key: tuple[str, str], value: float) -> "CandidateModel":
+        """This model with the fixed value ``key`` set to ``value`` (SI), for a
+        sensitivity; returns self, so ``model.nudged(k, v)`` then ``model.shape(...)``.
+        :meth:`restore` undoes it."""
+        self.overrides = {key: float(value)}
+        return self
+
+    def restore(self) -> None:
+        """Undo :meth:`nudged`."""
+        self.overrides = {}
+
+    def _fixed_values(self) -> np.ndarray:
+        """The engine's default values with the overrides applied."""
+        values = self._values.copy()
+        for key, value in self.overrides.items():
+            cols = [k for k, e in enumerate(self.engine.topology.elements) if (e.part, e.role) == key]
+            values[0, cols] = value
+        return values
 
     def circuit(self, physical: np.ndarray) -> Circuit:
         """The candidate's circuit with ``physical`` free values."""
@@ -91,7 +115,7 @@ class CandidateModel:
         if self.rebuilds:
             engine = ExactEngine(self.circuit(physical))
             return engine, engine.model()
-        values = self._values.copy()
+        values = self._fixed_values()
         for cols, value in zip(self._columns, physical):
             values[0, cols] = value
         return self.engine, self.engine.model(values, self._initials)
@@ -110,7 +134,7 @@ class CandidateModel:
         self.evaluations += physicals.shape[0]
         if self.rebuilds:
             return np.stack([ExactEngine(self.circuit(p)).response(times)[0] for p in physicals])
-        values = np.repeat(self._values, physicals.shape[0], axis=0)
+        values = np.repeat(self._fixed_values(), physicals.shape[0], axis=0)
         for k, cols in enumerate(self._columns):
             values[:, cols] = physicals[:, k:k + 1]
         initials = np.repeat(self._initials, physicals.shape[0], axis=0)

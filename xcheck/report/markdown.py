@@ -106,8 +106,9 @@ def markdown(comparison: Comparison, data: dict[str, Any]) -> str:
               "distinguishable (their words: not worth more than a bare mention), 2–6 positive, "
               "6–10 strong, > 10 very strong. AIC and BIC use the effective sample count "
               f"n_eff = {_num(comparison.observation.n_effective, 4)}.", ""]
-    lines += ["## Fitted values", "", "| candidate | value | fitted | ± standard error | start | note |",
-              "|---|---|---:|---:|---:|---|"]
+    lines += ["## Fitted values", "", "| candidate | value | fitted | ± standard error (fit) | "
+              "± with the fixed values' uncertainty | start | note |",
+              "|---|---|---:|---:|---:|---:|---|"]
     for outcome in comparison.outcomes:
         for value in outcome.fit.fitted:
             note = "at a bound" if value.at_bound else ""
@@ -121,14 +122,20 @@ def markdown(comparison: Comparison, data: dict[str, Any]) -> str:
                             f"({shown}); the ± applies to the {group.combination}")
             lines.append(
                 f"| {md(outcome.name)} | {md(value.label)} | {format_eng(value.value, value.unit, 4)} | "
-                f"{format_eng(value.stderr, value.unit, 2)} | {format_eng(value.start, value.unit)} | {note} |"
+                f"{format_eng(value.stderr, value.unit, 2)} | {format_eng(value.uncertainty, value.unit, 2)} | "
+                f"{format_eng(value.start, value.unit)} | {note} |"
             )
         for name, (value, stderr) in outcome.fit.nuisance.items():
             unit = NUISANCE_UNITS.get(name, "")
             shown = (f"{format_eng(value, unit, 4)} | {format_eng(stderr, unit, 2)}" if unit
                      else f"{_num(value)} | {_num(stderr, 2)}")
-            lines.append(f"| {md(outcome.name)} | {name} (nuisance) | {shown} | | |")
-    lines += ["", "Nuisance values, fitted in every candidate so that none loses to the instrument: "
+            lines.append(f"| {md(outcome.name)} | {name} (nuisance) | {shown} | | | |")
+    lines += ["", "The second ± adds what the values each candidate holds fixed carry into it: "
+              "meter readings (1 % of a measured L or C; 1 % + 10 mΩ of a two-wire reading) and "
+              "label tolerances (as the half-width of a rectangular distribution), propagated "
+              "through the fit's sensitivities as in JCGM 100 (the GUM), section 5; other stated "
+              "values are taken as exact.", ""]
+    lines += ["Nuisance values, fitted in every candidate so that none loses to the instrument: "
               "gain (probe attenuation and true initial voltage, 1 = as stated), offset (scope DC "
               "offset, V), shift (error of the detected event time, s); for a peak table, amplitude "
               "(1 = as predicted) and time_origin (s).", ""]

@@ -11,7 +11,10 @@
 - ``candidates``: list, best first, of {``name``, ``description``, ``rank`` (int or
   null), ``failed`` (bool), ``failure_reason``, ``nrmse``, ``rmse_volts``,
   ``max_error_volts``, ``aic``, ``bic``, ``delta_bic``, ``evidence``, ``fitted`` (object:
-  "PART.FIELD" -> SI value), ``fitted_stderr`` (same keys), ``series_resistance_ohm``,
+  "PART.FIELD" -> SI value), ``fitted_stderr`` (same keys: the fit's own standard error),
+  ``fitted_uncertainty`` (same keys: combined with what the fixed values carry, GUM
+  section 5), ``uncertainty_budget`` (same keys: list of {from, standard_uncertainty}),
+  ``series_resistance_ohm``,
   ``damped_frequency_hz``, ``neper_frequency_per_s``, ``engines`` {theory, ngspice: {rmse,
   nrmse, max_error, aic, bic, damped_frequency_error_hz, neper_frequency_error_per_s} or
   null}, ``engine_disagreement`` (max |ngspice - theory| / amplitude),
@@ -125,6 +128,9 @@ def _candidate_json(outcome: CandidateOutcome) -> dict[str, Any]:
         "evidence": outcome.ranked.evidence,
         "fitted": {v.label: _finite(v.value) for v in fit.fitted},
         "fitted_stderr": {v.label: _finite(v.stderr) for v in fit.fitted},
+        "fitted_uncertainty": {v.label: _finite(v.uncertainty) for v in fit.fitted},
+        "uncertainty_budget": {v.label: [{"from": words, "standard_uncertainty": _finite(u)}
+                                         for words, u in v.budget] for v in fit.fitted},
         "series_resistance_ohm": _finite(outcome.series_resistance_ohm),
         "damped_frequency_hz": _finite(ring.frequency_hz) if ring else None,
         "neper_frequency_per_s": _finite(ring.alpha) if ring else None,
