@@ -35,6 +35,7 @@ from xcheck.measured import Measured, display_path, measure
 from xcheck.fitting.rank import Ranked, rank_by_bic
 from xcheck.outcome import CandidateOutcome, Comparison, EngineMetrics, InputFile
 from xcheck.fitting.structure import second_mode, structural_rungs
+from xcheck.sanity import sanity_findings
 from xcheck.verdict import MISFIT_LIMIT, write_loop_findings, write_verdict
 
 #: Longest record the fit evaluates (points); longer traces are decimated evenly.
@@ -121,9 +122,11 @@ def run_comparison(
     inputs.append(InputFile("trace" if trace is not None else "peak table",
                             display_path(measurement_path), sha256_of(measurement_path)))
     loop_findings = tuple(write_loop_findings(fixture, ordered, alpha))
-    verdict = write_verdict(fixture, measured, ordered, loop_findings)
+    findings = tuple(sanity_findings(ordered, measured.damped_frequency_hz.value,
+                                     measured.event_size))
+    verdict = write_verdict(fixture, measured, ordered, loop_findings, findings)
     return Comparison(fixture, measured, observation, tuple(ordered), verdict, tuple(inputs),
-                      loop_findings, {}, version)
+                      loop_findings, {}, version, findings)
 
 
 def _structural_rungs(fixture: Fixture, candidates: list[Candidate], fits: list[FitResult],

@@ -23,6 +23,15 @@ from xcheck.fitting.rank import Ranked
 from xcheck.fixture.model import Fixture
 from xcheck.measured import Measured
 
+
+@dataclass(frozen=True)
+class Finding:
+    """One sanity finding (:mod:`xcheck.sanity`): a short stable code and the sentence
+    for the verdict."""
+
+    code: str
+    text: str
+
 #: Engines agree to about 1e-4 of the amplitude (tested); beyond 1e-3 it is a deck,
 #: time-step or approximation problem worth a reviewer's attention.
 ENGINE_DISAGREEMENT_LIMIT = 1e-3
@@ -100,6 +109,8 @@ class Comparison:
     loop_findings: tuple[str, ...] = ()
     seeds: dict[str, int] = field(default_factory=dict)
     ngspice_version: str = ""
+    #: What an engineer would catch first (:func:`xcheck.sanity.sanity_findings`).
+    findings: tuple[Finding, ...] = ()
 
     @property
     def best(self) -> CandidateOutcome | None:

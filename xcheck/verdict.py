@@ -221,7 +221,7 @@ def _bound_sentence(fixture: Fixture, value: FittedValue) -> str:
 
 
 def write_verdict(fixture: Fixture, measured: Measured, outcomes: list[CandidateOutcome],
-                  loop_findings: tuple[str, ...]) -> str:
+                  loop_findings: tuple[str, ...], findings: tuple = ()) -> str:
     """One paragraph a reviewer can read: best candidate, the fitted extra, how much
     worse the as-measured model does, and the measured-side findings.
 
@@ -236,6 +236,9 @@ def write_verdict(fixture: Fixture, measured: Measured, outcomes: list[Candidate
         Every candidate's outcome, best first.
     loop_findings
         Sentences from :func:`write_loop_findings`.
+    findings
+        Sanity findings (:func:`xcheck.sanity.sanity_findings`): they come first, after
+        a misfit warning, as things to check before reading the numbers.
 
     Returns
     -------
@@ -255,7 +258,9 @@ def write_verdict(fixture: Fixture, measured: Measured, outcomes: list[Candidate
             "fixture describes this capture (natural or step response, the probed part, "
             "probe polarity and attenuation, the channel) before reading the numbers below"
         )
-    lead = "The closest candidate" if misfit is not None else (
+    for finding in findings:
+        parts.append(f"Check first: {finding.text}")
+    lead = "The closest candidate" if misfit is not None or findings else (
         "The best explanation of the measurement")
     parts.append(f"{lead} is candidate '{best.name}' ({best.candidate.description})")
     if best.theory is not None:

@@ -29,6 +29,9 @@
   ``time_constants_s`` (list of {value, stderr}, slowest first; null when it rings),
   ``envelope_exponential`` (bool; null when it does not ring), ``flagged_extrema``
   (0-based indices in time order), ``findings``, ``alignment``}
+- ``findings``: list of {code, text}: what to check before reading the numbers (codes
+  ``gain``, ``gain-decade``, ``gain-sign``, ``offset``, ``time-scale``; see
+  :mod:`xcheck.sanity`)
 - ``inputs``: list of {role, path, sha256}; ``versions``; ``seeds``; ``safety``.
 All numbers are SI (s, V, ohm, H, F, Hz, 1/s); non-finite numbers are written as null.
 Numbers are written to :data:`SIGNIFICANT_DIGITS` significant digits, so that the same
@@ -215,6 +218,7 @@ def summary(comparison: Comparison) -> dict[str, Any]:
         "candidates": [_candidate_json(o) for o in comparison.outcomes],
         "measured": _measured_json(comparison.measured),
         "loop_findings": list(comparison.loop_findings),
+        "findings": [{"code": f.code, "text": f.text} for f in comparison.findings],
         "inputs": [{"role": i.role, "path": i.path, "sha256": i.sha256} for i in comparison.inputs],
         "versions": versions(comparison),
         "seeds": dict(comparison.seeds),
