@@ -62,6 +62,7 @@ def run_comparison(
     event_time: float | None = None,
     use_ngspice: bool = True,
     progress: Progress | None = None,
+    keep_all: bool = False,
 ) -> Comparison:
     """Compare the fixture's candidate models with one measurement.
 
@@ -79,6 +80,9 @@ def run_comparison(
         Evaluate each fitted candidate in ngspice too (the default).
     progress
         Called with a short line of text as each stage starts.
+    keep_all
+        Keep peak-table readings the ring-down estimate flags (see
+        :func:`xcheck.measured.measure`).
 
     Returns
     -------
@@ -88,7 +92,8 @@ def run_comparison(
     if (trace is None) == (peaks is None):
         raise XcheckError("give exactly one measurement: a trace (--trace) or a peak table (--peaks)")
     say("reading and aligning the measurement")
-    measured = measure(fixture, trace=trace, peaks=peaks, column=column, event_time=event_time)
+    measured = measure(fixture, trace=trace, peaks=peaks, column=column, event_time=event_time,
+                       keep_all=keep_all)
     observation = measured.observation(max_points=MAX_FIT_POINTS)
     alpha = measured.neper_frequency_per_s.value
     candidates = build_candidates(fixture, RingHint(measured.natural_angular_frequency))

@@ -229,14 +229,16 @@ class MeasuredPeaks(Measured):
     kind: ClassVar[str] = "peaks"
 
     def observation(self, max_points: int = 20_000) -> PeakObservation:
-        """Every reading (a table is never decimated; ``max_points`` is not used), with
-        the stated uncertainties or else the estimate's noise, and the scatter of the
-        extremum times."""
+        """Every reading but those left out (``excluded``: flagged as misread; a table
+        is never decimated, ``max_points`` is not used), with the stated uncertainties
+        or else the estimate's noise, and the scatter of the extremum times."""
         period = 1.0 / self.estimate.damped_frequency.value
         sigma = (self.uncertainty if self.uncertainty is not None
                  else np.full(self.voltage.shape, self.estimate.noise_sigma))
-        return PeakObservation(self.time, self.voltage, sigma, period,
-                               time_sigma=_time_scatter(self.time, period, self.time_resolution))
+        kept = ~self.excluded
+        return PeakObservation(self.time[kept], self.voltage[kept], sigma[kept], period,
+                               time_sigma=_time_scatter(self.time, period, self.time_resolution),
+                               first_time=float(self.time[0]) if not kept[0] else None)
 
     def misfit_ratio(self, fit: FitResult) -> float:
         """sqrt(reduced chi-square) of the fit (1 when the readings scatter as their
@@ -339,6 +341,7 @@ def measure(
     peaks: str | Path | None = None,
     column: str | int | None = None,
     event_time: float | None = None,
+    keep_all: bool = False,
 ) -> Measured:
     """Read, align and estimate one measurement for ``fixture``.
 
@@ -352,6 +355,9 @@ def measure(
         Channel of the trace (name or index).
     event_time
         Manual event time (s, file time base).
+    keep_all
+        Keep a peak table's readings that the ring-down estimate flags as off the
+        envelope (left out of every fit by default, and said so).
 
     Returns
     -------
@@ -364,9 +370,20 @@ def measure(
     )
     estimate = found.estimate
     if found.is_peak_table:
+        flagged = _flagged_readings(found.time, estimate) if not keep_all else np.zeros(
+            found.time.size, bool)
+        findings = list(_envelope_findings(estimate))
+        if flagged.any():
+            which = ", ".join(f"#{k} (t = {format_eng(found.time[k], 's')})"
+                              for k in np.flatnonzero(flagged))
+            findings.append(
+                f"Reading{'s' if flagged.sum() > 1 else ''} {which} "
+                f"{'were' if flagged.sum() > 1 else 'was'} left out of every fit: the ring-down "
+                "estimate flags it as off the envelope of the others (a misread cursor?); "
+                "--keep-all keeps every reading.")
         return MeasuredPeaks(str(peaks), found.time - found.time[0], found.voltage,
-                             np.zeros(found.time.size, bool), found.uncertainty, estimate, None,
-                             _envelope_findings(estimate), tuple(estimate.envelope.findings),
+                             flagged, found.uncertainty, estimate, None,
+                             tuple(findings), tuple(estimate.envelope.findings),
                              found.time_resolution)
     excluded = np.asarray(found.excluded, bool)
     alignment = found.alignment
@@ -403,6 +420,21 @@ def measure(
     return MeasuredTrace(str(trace), found.time, found.voltage, excluded, None, estimate,
                          alignment, tuple(findings), tuple(notes),
                          instrument_noise=instrument)
+
+
+def _flagged_readings(time: np.ndarray, estimate: RingdownEstimate) -> np.ndarray:
+    """Mask over a peak table's readings of those the estimate flags and leaves out of
+    its own main estimate (a flagged pattern it keeps is systematic, not a misreading)."""
+    mask = np.zeros(time.size, bool)
+    if not getattr(estimate, "excludes_flagged", False):
+        return mask
+    times = np.asarray(estimate.extrema_time, float)
+    for index in estimate.flagged_extrema:
+        if 0 <= index < times.size:
+            mask |= np.isclose(time, times[index], rtol=0, atol=1e-12 * max(abs(times[index]), 1e-30))
+    if mask.sum() > time.size - 3:  # never leave fewer than three readings
+        mask[:] = False
+    return mask
 
 
 def _envelope_findings(estimate: RingdownEstimate) -> tuple[str, ...]:

@@ -28,6 +28,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="exit 1 when the best candidate's NRMSE exceeds this fraction (e.g. 0.02)")
     parser.add_argument("--no-ngspice", action="store_true",
                         help="skip the ngspice evaluation (closed form only)")
+    parser.add_argument("--keep-all", action="store_true",
+                        help="keep peak-table readings flagged as off the envelope (left out by default)")
     parser.add_argument("--quiet", action="store_true", help="no progress lines")
 
 
@@ -82,6 +84,7 @@ def run(args: argparse.Namespace) -> int:
         event_time=event_time,
         use_ngspice=not args.no_ngspice,
         progress=say,
+        keep_all=args.keep_all,
     )
     out = Path(args.out) if args.out else Path("reports") / fixture.name
     return finish(comparison, out, args.max_nrmse, say)

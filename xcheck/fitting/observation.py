@@ -257,6 +257,9 @@ class PeakObservation(Observation):
     """
 
     time_sigma: float = 0.0
+    #: Time of the table's first reading (s) when readings were left out before it,
+    #: so that the kept readings keep their turning-point numbers; None: ``time[0]``.
+    first_time: float | None = None
 
     discrete: ClassVar[bool] = True
 
@@ -271,7 +274,8 @@ class PeakObservation(Observation):
         for a step."""
         first = 1 if response == "step" else 0
         half = self.period / 2.0
-        return first + np.rint((self.time - self.time[0]) / half).astype(int)
+        origin = self.time[0] if self.first_time is None else self.first_time
+        return first + np.rint((self.time - origin) / half).astype(int)
 
     def residuals(self, model: FitModel, start: np.ndarray) -> Residuals:
         time, voltage, sigma = self.time, self.voltage, self.sigmas
