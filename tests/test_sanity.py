@@ -59,3 +59,28 @@ def test_gain_words():
     assert _gain_finding("gain", -1.0).code == "gain-sign"
     assert _gain_finding("gain", 0.58).code == "gain"
     assert _gain_finding("gain", 9.97).code == "gain-decade"
+
+
+def test_a_value_outside_what_bench_parts_span_is_noted(tmp_path, printed):
+    # 1.12e-15 F for a snubber capacitor: valid, but below the 0.1 pF of any bench part
+    # (xcheck/fixture/plausibility.py); the deck is still written, with a note.
+    from xcheck.cli import main
+
+    text = LOSSY_JIG_TOML.replace('nominal = "10u"\nmeasured = "10.2u"', 'nominal = "1.12e-15"')
+    fixture = tmp_path / "tiny.toml"
+    fixture.write_text(text, encoding="utf-8")
+    assert main(["deck", str(fixture), "--out", str(tmp_path / "tiny.cir")]) == 0
+    out = printed().out
+    assert "note: C1 nominal = 1.12 fF is outside what bench parts span" in out
+    from xcheck.fixture.plausibility import implausible_values
+    from xcheck.fixture.reader import load_fixture
+
+    assert implausible_values(load_fixture(tmp_path / "tiny.toml"))
+    assert implausible_values(load_fixture(
+        write_fixture(tmp_path, LOSSY_JIG_TOML))) == []
+
+
+def write_fixture(folder, text):
+    path = folder / "plain.toml"
+    path.write_text(text, encoding="utf-8")
+    return path

@@ -33,8 +33,9 @@ from xcheck.fitting.observation import Observation
 from xcheck.fixture.model import Fixture
 from xcheck.measured import Measured, display_path, measure
 from xcheck.fitting.rank import Ranked, rank_by_bic
-from xcheck.outcome import CandidateOutcome, Comparison, EngineMetrics, InputFile
+from xcheck.outcome import CandidateOutcome, Comparison, EngineMetrics, Finding, InputFile
 from xcheck.fitting.structure import second_mode, structural_rungs
+from xcheck.fixture.plausibility import implausible_values
 from xcheck.sanity import sanity_findings
 from xcheck.verdict import MISFIT_LIMIT, write_loop_findings, write_verdict
 
@@ -127,8 +128,9 @@ def run_comparison(
     inputs.append(InputFile("trace" if trace is not None else "peak table",
                             display_path(measurement_path), sha256_of(measurement_path)))
     loop_findings = tuple(write_loop_findings(fixture, ordered, alpha))
-    findings = tuple(sanity_findings(ordered, measured.damped_frequency_hz.value,
-                                     measured.event_size))
+    findings = tuple(Finding("implausible-value", note) for note in implausible_values(fixture))
+    findings += tuple(sanity_findings(ordered, measured.damped_frequency_hz.value,
+                                      measured.event_size))
     verdict = write_verdict(fixture, measured, ordered, loop_findings, findings)
     return Comparison(fixture, measured, observation, tuple(ordered), verdict, tuple(inputs),
                       loop_findings, {}, version, findings)

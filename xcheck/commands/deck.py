@@ -3,7 +3,9 @@
 The deck holds the values the fixture states (measured where given, else the label),
 every parasitic it states and the probe loading. It is written atomically (a temporary
 file in the same folder, then a rename), and an existing file is replaced only when it
-is itself a deck xcheck wrote, so nothing the user made is ever overwritten.
+is itself a deck xcheck wrote, so nothing the user made is ever overwritten. Values
+outside what bench parts span are printed as notes
+(:func:`xcheck.fixture.plausibility.implausible_values`).
 """
 
 from __future__ import annotations
@@ -15,6 +17,7 @@ from pathlib import Path
 from xcheck.atomic import DECK_HINT, deck_is_ours, write_text_atomically
 from xcheck.circuit.expand import build_circuit
 from xcheck.engines.deck import write_deck
+from xcheck.fixture.plausibility import implausible_values
 from xcheck.fixture.reader import load_fixture
 from xcheck.circuit.parameters import parameters_from_fixture
 from xcheck.values import format_eng
@@ -53,5 +56,7 @@ def run(args: argparse.Namespace) -> int:
         f"transient to {format_eng(float(tran[2]), 's')} "
         f"in steps of at most {format_eng(float(tran[4]), 's')}\n"
     )
+    for note in implausible_values(fixture):
+        sys.stdout.write(f"note: {note}\n")
     return 0
 

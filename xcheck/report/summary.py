@@ -31,7 +31,7 @@
   (0-based indices in time order), ``findings``, ``alignment``}
 - ``findings``: list of {code, text}: what to check before reading the numbers (codes
   ``gain``, ``gain-decade``, ``gain-sign``, ``offset``, ``time-scale``; see
-  :mod:`xcheck.sanity`)
+  :mod:`xcheck.sanity`; ``implausible-value``, see :mod:`xcheck.fixture.plausibility`)
 - ``inputs``: list of {role, path, sha256}; ``versions``; ``seeds``; ``safety``.
 All numbers are SI (s, V, ohm, H, F, Hz, 1/s); non-finite numbers are written as null.
 Numbers are written to :data:`SIGNIFICANT_DIGITS` significant digits, so that the same
