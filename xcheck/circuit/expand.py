@@ -52,6 +52,7 @@ import math
 from typing import TYPE_CHECKING
 
 from xcheck.circuit.layout import (
+    start_build,
     _representatives,
     _renamed,
     _series_specs,
@@ -62,11 +63,8 @@ from xcheck.circuit.layout import (
 )
 from xcheck.circuit.model import (
     GROUND,
-    RESERVED_NODE_NAMES,
     Circuit,
-    UniqueNames,
     check_topology,
-    spice_identifier,
 )
 from xcheck.circuit.nodes import build_node_circuit
 from xcheck.errors import FixtureError
@@ -251,14 +249,7 @@ def build_circuit(fixture: Fixture, parameters: ParameterSet) -> Circuit:
     if problems:
         raise FixtureError(source, problems)
 
-    work = _Work(nodes=UniqueNames(RESERVED_NODE_NAMES), names=UniqueNames())
-    connections = fixture.connections()
-    node_map = {GROUND: GROUND}
-    work.order[GROUND] = 0
-    for _, first, second in connections:
-        for node in (first, second):
-            if node not in node_map:
-                node_map[node] = work.node(spice_identifier(node, "n"))
+    work, connections, node_map = start_build(fixture)
 
     has_ideal_switch = any(
         PART_KINDS[fixture.parts[name].kind].ideal is not None

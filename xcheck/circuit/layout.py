@@ -19,12 +19,18 @@ from typing import TYPE_CHECKING
 
 from networkx.utils import UnionFind
 
-from xcheck.circuit.model import GROUND, Element, UniqueNames, spice_identifier
+from xcheck.circuit.model import (
+    GROUND,
+    RESERVED_NODE_NAMES,
+    Element,
+    UniqueNames,
+    spice_identifier,
+)
 from xcheck.circuit.parameters import PROBE_CAPACITANCE, PROBE_RESISTANCE, ParameterSet
 from xcheck.fixture.schema import PART_KINDS, UNIT_LETTER
 
 if TYPE_CHECKING:  # pragma: no cover - import for type hints only
-    from xcheck.fixture.model import Part
+    from xcheck.fixture.model import Fixture, Part
 
 
 @dataclass
@@ -60,6 +66,21 @@ class _Spec:
     value: float
     origin: str
     initial: float | None
+
+
+def start_build(fixture: Fixture) -> tuple[_Work, tuple[tuple[str, str, str], ...], dict[str, str]]:
+    """A new build's state, the fixture's connections, and each fixture node's circuit
+    node (ground kept as ``"0"``, the others reduced to SPICE identifiers, unique
+    ignoring case), for either wiring form."""
+    work = _Work(nodes=UniqueNames(RESERVED_NODE_NAMES), names=UniqueNames())
+    connections = fixture.connections()
+    node_map = {GROUND: GROUND}
+    work.order[GROUND] = 0
+    for _, first, second in connections:
+        for node in (first, second):
+            if node not in node_map:
+                node_map[node] = work.node(spice_identifier(node, "n"))
+    return work, connections, node_map
 
 
 def _series_specs(part: Part, parameters: ParameterSet, current: float) -> list[_Spec]:

@@ -45,6 +45,7 @@ from typing import TYPE_CHECKING
 import networkx as nx
 
 from xcheck.circuit.layout import (
+    start_build,
     _representatives,
     _renamed,
     _Work,
@@ -54,10 +55,7 @@ from xcheck.circuit.layout import (
     insert_current_probe,
 )
 from xcheck.circuit.model import (
-    GROUND,
-    RESERVED_NODE_NAMES,
     Circuit,
-    UniqueNames,
     check_topology,
     spice_identifier,
 )
@@ -100,14 +98,7 @@ def build_node_circuit(fixture: Fixture, parameters: ParameterSet, source: str) 
     currents, problems = chain_currents(fixture)
     if problems:
         raise FixtureError(source, problems)
-    work = _Work(nodes=UniqueNames(RESERVED_NODE_NAMES), names=UniqueNames())
-    connections = fixture.connections()
-    node_map = {GROUND: GROUND}
-    work.order[GROUND] = 0
-    for _, first, second in connections:
-        for node in (first, second):
-            if node not in node_map:
-                node_map[node] = work.node(spice_identifier(node, "n"))
+    work, connections, node_map = start_build(fixture)
 
     loss = fixture.loss_part
     probe_current = None
