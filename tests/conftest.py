@@ -3,6 +3,7 @@ use them unless several test modules need them."""
 
 from __future__ import annotations
 
+import os
 from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
@@ -82,6 +83,25 @@ def ngspice_available() -> bool:
 
 def pytest_configure(config: pytest.Config) -> None:
     config.addinivalue_line("markers", "ngspice: needs ngspice's shared library (libngspice)")
+
+
+def _hypothesis_profiles() -> None:
+    """Property tests (hypothesis) run the same examples on every machine: the "ci"
+    profile, loaded unless HYPOTHESIS_PROFILE names another, is derandomized (no
+    example database), bounded in examples and without a per-example deadline, so a
+    slow or busy machine does not fail them. "thorough" tries many more examples."""
+    try:
+        from hypothesis import HealthCheck, settings
+    except ImportError:  # the property tests skip themselves
+        return
+    common = dict(deadline=None, derandomize=True, database=None, print_blob=False,
+                  suppress_health_check=[HealthCheck.too_slow])
+    settings.register_profile("ci", max_examples=60, **common)
+    settings.register_profile("thorough", max_examples=2000, **common)
+    settings.load_profile(os.environ.get("HYPOTHESIS_PROFILE", "ci"))
+
+
+_hypothesis_profiles()
 
 
 def pytest_collection_modifyitems(config: pytest.Config, items: list[pytest.Item]) -> None:

@@ -281,3 +281,40 @@ def test_a_misread_cursor_reading_is_left_out_unless_kept(tmp_path, lossy_fixtur
     assert kept.observation.time.size == 10
     assert "left out of every fit" not in kept.verdict
     assert kept.verdict.startswith("NO candidate explains")  # the misread reading misfits
+
+
+def test_seven_cursor_readings_with_the_last_60_percent_low_and_a_scope_floor(tmp_path):
+    # Seven readings of the lossy jig (50 mV seeded cursor noise, no uncertainty column),
+    # the last 60 % low. With the scope's accuracy stated ([scope]: 2 % of 8 x 0.5 V,
+    # 46 mV standard uncertainty by JCGM 100 4.3.7) the reading is flagged and left out
+    # of every fit; on the same table without the misread, nothing is left out.
+    # Reference: the capture's construction (tests/compare_cases.py).
+    import numpy as np
+
+    from compare_cases import data_text, lossy_capture
+    from xcheck.demo.synth import peak_table
+    from xcheck.fixture.reader import load_fixture
+
+    fixture_path = tmp_path / "jig.toml"
+    fixture_path.write_text(data_text("lossy_jig.toml") + '\n[scope]\nvertical_accuracy = "2%"\n'
+                            'volts_per_division = "500m"\n', encoding="utf-8")
+    fixture = load_fixture(fixture_path)
+    assert fixture.scope is not None and abs(fixture.scope.reading_floor - 0.0462) < 1e-4
+    table = peak_table(lossy_capture(33), count=7, time_origin=-0.37e-3, cursor_volts=0.05,
+                       cursor_seconds=2e-7)
+    for misread in (False, True):
+        rows = table.copy()
+        if misread:
+            rows[6, 1] *= 0.4
+        path = tmp_path / f"seven_{misread}.csv"
+        path.write_text("time [ms],value [V]\n" + "".join(
+            f"{t * 1e3:.5f},{v:.3f}\n" for t, v in rows), encoding="ascii")
+        result = run_comparison(fixture, peaks=path, use_ngspice=False)
+        if misread:
+            assert result.observation.time.size == 6
+            assert "#6" in result.verdict and "left out of every fit" in result.verdict
+            assert any("reading 7 of 7 lies" in n and "below" in n
+                       for n in result.measured.notes)
+        else:
+            assert result.observation.time.size == 7
+            assert "left out of every fit" not in result.verdict

@@ -101,20 +101,25 @@ class BoundedStream:
         Largest number of bytes that may be read from ``raw`` in all.
     what
         Words for the message (``"the decompressed trace"``).
+    already
+        Bytes of the same content read before this stream took over (they count
+        towards ``max_bytes``).
     """
 
-    def __init__(self, raw: _Readable, max_bytes: int, what: str) -> None:
+    def __init__(self, raw: _Readable, max_bytes: int, what: str, already: int = 0) -> None:
         self._raw = raw
-        self._left = max_bytes
+        self._left = max_bytes - already
         self._max = max_bytes
         self._what = what
         self.closed = False
 
     def read(self, size: int = -1, /) -> bytes:
         """Up to ``size`` bytes (all when negative), never more than the bound allows."""
-        want = self._left + 1 if size is None or size < 0 else min(size, self._left + 1)
-        data = self._raw.read(want)
-        self._left -= len(data)
+        data = b""
+        if self._left >= 0:  # (bytes read before this stream may already be too many)
+            want = self._left + 1 if size is None or size < 0 else min(size, self._left + 1)
+            data = self._raw.read(want)
+            self._left -= len(data)
         if self._left < 0:
             raise InputFileProblem(
                 f"holds more than {size_words(self._max)} as {self._what}, the most "

@@ -367,6 +367,7 @@ def measure(
         peaks if peaks is not None else trace, peaks=peaks is not None, column=column,
         event_time=event_time, expect=fixture.response, expected_sign=_expected_sign(fixture),
         allow_aperiodic=True,
+        reading_floor=fixture.scope.reading_floor if fixture.scope is not None else 0.0,
     )
     estimate = found.estimate
     if found.is_peak_table:
@@ -439,9 +440,12 @@ def _flagged_readings(time: np.ndarray, estimate: RingdownEstimate) -> np.ndarra
 
 def _envelope_findings(estimate: RingdownEstimate) -> tuple[str, ...]:
     """Envelope findings for the verdict: only when something deviates."""
+    said = estimate.envelope.findings
     if estimate.envelope_exponential and not estimate.flagged_extrema:
-        return ("The extrema decay as one exponential within their uncertainties.",)
-    return tuple(estimate.envelope.findings)
+        # A peak table too short to tell says so instead (ringdown/reading_misses.py).
+        caveats = tuple(f[0].upper() + f[1:] + "." for f in said if f.startswith("with "))
+        return caveats or ("The extrema decay as one exponential within their uncertainties.",)
+    return tuple(said)
 
 
 def _aperiodic_finding(estimate: AperiodicEstimate) -> str:

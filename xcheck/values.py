@@ -235,6 +235,8 @@ def format_eng(value: float, unit: str = "", digits: int = 3) -> str:
         return f"0 {symbol}".strip()
     # Round first so that 999.96 becomes 1.00k rather than 1000.
     rounded = float(f"{value:.{digits - 1}e}")
+    if not math.isfinite(rounded):  # 1.5e308 to one digit rounds past the largest double
+        rounded = value
     exponent = math.floor(math.log10(abs(rounded)))
     eng = max(min(3 * math.floor(exponent / 3), 12), -15)
     prefix = dict(_PREFIXES)[eng]

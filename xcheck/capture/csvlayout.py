@@ -18,7 +18,7 @@ from pathlib import Path
 import numpy as np
 
 from xcheck.errors import TraceError
-from xcheck.input_file import InputFileProblem, open_regular
+from xcheck.input_file import BoundedStream, InputFileProblem, open_regular
 from xcheck.quoting import excerpt, quoted
 
 #: How much of the (decompressed) file is read to work out its layout.
@@ -201,6 +201,8 @@ def open_source(path: str | Path, size: int = HEAD_BYTES) -> Source:
             handle.seek(0)
             with (gzip.open(handle, "rb") if is_gzip else handle) as text:
                 head = text.read(size + 1)
+                if is_gzip and len(head) > size:
+                    _check_decompressed_size(text, len(head))
     except InputFileProblem as exc:
         raise TraceError(name, [f"the file {exc}"]) from None
     except PermissionError:
@@ -211,6 +213,19 @@ def open_source(path: str | Path, size: int = HEAD_BYTES) -> Source:
         what = "the gzip data is damaged or cut short" if is_gzip else "cannot read the file"
         raise TraceError(name, [f"{what} ({exc}); copy or export the capture again"]) from None
     return Source(file, name, is_gzip, head[:size], len(head) <= size)
+
+
+def _check_decompressed_size(stream: gzip.GzipFile, already: int) -> None:
+    """Read a gzip file's content to its end, raising
+    :class:`~xcheck.input_file.InputFileProblem` once it passes :data:`TRACE_MAX_BYTES`.
+
+    A gzip file of a few megabytes can expand to gigabytes; counting before the body is
+    parsed refuses such a file in the time it takes to decompress the limit, with memory
+    for one chunk, instead of parsing gigabytes of rows into arrays first.
+    """
+    bounded = BoundedStream(stream, TRACE_MAX_BYTES, "decompressed text", already=already)
+    while bounded.read(2**20):
+        pass
 
 
 def check_text(src: Source) -> None:

@@ -29,8 +29,10 @@ from xcheck.capture.csvlayout import (
     split_header_field,
     unit,
 )
+from xcheck.capture.ranges import span_problem, time_range_problem
 from xcheck.errors import TraceError, ValueParseError
 from xcheck.capture.types import MAX_EXAMPLES, MAX_PEAK_ROWS, MIN_PEAKS, PeakTable
+from xcheck.quoting import quoted
 from xcheck.values import parse_value
 
 
@@ -165,6 +167,13 @@ def read_peaks(path: str | Path) -> PeakTable:
             f"line {rows[k].number}: {np.abs(values[k, 1:]).max():.6g} V is beyond "
             f"±{CHANNEL_LIMIT:.0e} V, the most xcheck accepts; check the column's unit"
         )
+    if not problems:
+        found = time_range_problem(time)
+        if found is not None:
+            problems.append(f"line {rows[found[0]].number}: {found[1]}")
+        spread = span_problem(volts)
+        if spread is not None:
+            problems.append(f"the voltage column {quoted(header[1])}: {spread}")
     if problems:
         raise TraceError(src.name, problems)
     finest = [float(np.min(written[:, i])) for i in (0, 1)]

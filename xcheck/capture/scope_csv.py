@@ -69,6 +69,7 @@ from xcheck.capture.csvlayout import (
     sniff_layout,
 )
 from xcheck.capture.csvmeta import Meta, Stated, read_metadata, record_problems, time_problems
+from xcheck.capture.ranges import span_problem, time_range_problem
 from xcheck.capture import csvlayout
 from xcheck.errors import TraceError
 from xcheck.input_file import BoundedStream, InputFileProblem
@@ -142,6 +143,7 @@ def read_trace(
             ],
         )
     time = _time_axis(src, layout, plan, raw_time, volts.size)
+    _check_time_range(src, layout, plan, time)
     scale = plan.channel_scale  # positive, like the probe factor below
     if scale != 1.0:
         volts = volts * scale
@@ -152,6 +154,8 @@ def read_trace(
             f"column {plan.channel.label} holds {volts[0]:.6g} in every row; choose the "
             "channel that carries the signal"
         )
+    elif (spread := span_problem(volts)) is not None:
+        problems.append(f"column {plan.channel.label}: {spread}")
     if problems:
         raise TraceError(src.name, problems)
     if plan.meta.probe is not None and plan.meta.probe.value != 1.0:
@@ -190,6 +194,20 @@ def _check_magnitude(src: Source, layout: Layout, plan: _Plan, raw: np.ndarray,
         f"beyond ±{CHANNEL_LIMIT:.0e}, the most xcheck accepts; check the column, its unit "
         "and the probe factor, or export the capture again"
     ])
+
+
+def _check_time_range(src: Source, layout: Layout, plan: _Plan, time: np.ndarray) -> None:
+    """Refuse times beyond :data:`~xcheck.capture.ranges.TIME_LIMIT` or closer than
+    :data:`~xcheck.capture.ranges.MIN_TIME_STEP` (see :mod:`xcheck.capture.ranges`)."""
+    found = time_range_problem(time)
+    if found is None:
+        return
+    row, reason = found
+    if plan.time is not None:
+        where = f"line {int(_row_lines(src, layout, np.array([row]))[0])}"
+    else:
+        where = f"data row {row + 1} (times from the metadata's sample interval)"
+    raise TraceError(src.name, [f"{where}: {reason}"])
 
 
 @dataclass
@@ -494,8 +512,9 @@ def _increasing_problems(
 def _nonfinite_problems(
     src: Source, layout: Layout, values: np.ndarray, column: Column
 ) -> list[str]:
-    if math.isfinite(float(np.add.reduce(values))):
-        return []  # a finite sum: every value is finite (fast path)
+    with np.errstate(over="ignore"):  # a sum of huge finite values may overflow
+        if math.isfinite(float(np.add.reduce(values))):
+            return []  # a finite sum: every value is finite (fast path)
     bad = np.flatnonzero(~np.isfinite(values))
     if not bad.size:
         return []

@@ -18,6 +18,7 @@ import numpy as np
 from scipy import stats
 from scipy.optimize import least_squares
 
+from xcheck.ringdown.reading_misses import MissTest
 from xcheck.ringdown.result import EnvelopeDiagnostics
 from xcheck.values import format_eng
 
@@ -44,6 +45,7 @@ def diagnose_envelope(
     *,
     relative: bool = False,
     kind: str = "trace",
+    misses: MissTest | None = None,
 ) -> EnvelopeDiagnostics:
     """Test whether extrema decay as one exponential and flag those that do not.
 
@@ -60,6 +62,11 @@ def diagnose_envelope(
         scale is unknown (cursor readings without stated uncertainty).
     kind
         ``"trace"`` or ``"peaks"``: only changes the wording of likely causes.
+    misses
+        A peak table's leave-one-out test (:func:`xcheck.ringdown.reading_misses.reading_misses`):
+        when given, its deviations and flags replace this function's own outlier test,
+        and its sentences (each reading's miss in percent and standard errors, or what
+        so few readings cannot rule out) replace the per-extremum ones.
 
     Returns
     -------
@@ -129,11 +136,16 @@ def diagnose_envelope(
         z = _deleted_residuals(tc, y, s_y)
         threshold = max(3.0, float(stats.t.isf(FAMILY_LEVEL / (2 * n), n - 3)))
     flagged = [int(i) for i in np.flatnonzero(np.abs(z) > threshold)]
+    if misses is not None and len(misses.misses) == n:
+        z = np.array([m.deviation for m in misses.misses])
+        flagged = misses.flagged
+        threshold = misses.threshold
     good = np.ones(n, dtype=bool)
     good[flagged] = False
     curvature_t, curved = _curvature(tc[good], y[good], s_y[good], known)
     pattern = _pattern(flagged, z, n, curved, curvature_t)
-    findings = _findings(pattern, flagged, z, n, curvature_t, threshold, kind)
+    findings = _findings(pattern, flagged, z, n, curvature_t, threshold, kind,
+                         None if misses is None or len(misses.misses) != n else misses.findings)
     if pattern != "none" and good.sum() >= 6:
         early, late = _halves(t[good], y[good], s_y[good])
         findings.append(
@@ -240,16 +252,20 @@ def _findings(
     curvature_t: float | None,
     threshold: float,
     kind: str,
+    miss_findings: tuple[str, ...] | None = None,
 ) -> list[str]:
     worst = int(np.argmax(np.abs(z)))
     out = [
         f"{n} extrema tested against one exponential; the largest deviation is "
         f"{z[worst]:+.1f} standard errors at extremum {worst} (flag threshold {threshold:.1f})"
     ]
-    for i in flagged:
-        side = "above" if z[i] > 0 else "below"
-        out.append(f"extremum {i} lies {abs(z[i]):.1f} standard errors {side} the exponential")
-    if pattern == "none":
+    if miss_findings is not None:
+        out.extend(miss_findings)
+    else:
+        for i in flagged:
+            side = "above" if z[i] > 0 else "below"
+            out.append(f"extremum {i} lies {abs(z[i]):.1f} standard errors {side} the exponential")
+    if pattern == "none" and not miss_findings:
         out.append("the decay is one exponential within the uncertainties")
     elif pattern == "isolated":
         which = ", ".join(str(i) for i in flagged)
@@ -303,3 +319,4 @@ def _findings(
             "probably too small (noise underestimated, interference, readings of uneven care)"
         )
     return out
+

@@ -88,6 +88,7 @@ def ringdown_from_file(
     expected_sign: int | None = None,
     modes: int = 1,
     allow_aperiodic: bool = False,
+    reading_floor: float = 0.0,
 ) -> FileRingdown:
     """Read ``path``, align it and estimate its ring-down.
 
@@ -113,6 +114,9 @@ def ringdown_from_file(
         True to accept a trace that settles without ringing (overdamped, critically
         damped, first order) and estimate its time constants; False refuses it with a
         message saying what it is. Peak tables always ring.
+    reading_floor
+        A peak table's least reading error (V) besides its rounding: the scope's
+        vertical accuracy (a fixture's ``[scope]`` table).
 
     Returns
     -------
@@ -123,6 +127,7 @@ def ringdown_from_file(
         estimate = estimate_from_peaks(
             table.time, table.voltage, table.uncertainty, source=table.source,
             time_resolution=table.time_resolution, voltage_resolution=table.voltage_resolution,
+            reading_floor=reading_floor,
         )
         return FileRingdown(str(path), estimate, np.asarray(table.time),
                             np.asarray(table.voltage), None, None, table.source,

@@ -47,6 +47,7 @@ from scipy.optimize import least_squares, linprog
 from xcheck.errors import TraceError
 from xcheck.fitting.stats import covariance_from_jacobian
 from xcheck.ringdown.envelope import diagnose_envelope
+from xcheck.ringdown.reading_misses import reading_misses
 from xcheck.ringdown.result import (
     EnvelopeDiagnostics,
     Estimate,
@@ -109,6 +110,7 @@ def estimate_from_peaks(
     fit_offset: bool | None = None,
     time_resolution: float | None = None,
     voltage_resolution: float | None = None,
+    reading_floor: float = 0.0,
 ) -> RingdownEstimate:
     """Estimate frequency, decay and amplitude from extrema readings.
 
@@ -132,6 +134,11 @@ def estimate_from_peaks(
         Default: inferred from the numbers (:func:`decimal_resolution`); 0 turns the
         floor off. Their rounding, ``resolution / sqrt(12)`` standard deviation, is the
         least error the times and values are taken to carry.
+    reading_floor
+        Known least standard error of a value (V) besides its rounding, e.g. the scope's
+        vertical accuracy (:attr:`xcheck.fixture.scope_table.ScopeSetting.reading_floor`).
+        With few readings the envelope test judges each reading against at least this
+        (:mod:`xcheck.ringdown.reading_misses`).
 
     Returns
     -------
@@ -171,10 +178,17 @@ def estimate_from_peaks(
     diag_offset = _robust_offset(t, v, u, k, start, fit_offset)
     sign = np.sign(start[3]) * np.where(k % 2 == 0, 1.0, -1.0)
     amplitude = np.maximum(sign * (v - diag_offset), 1e-300)
+    if not (math.isfinite(reading_floor) and reading_floor >= 0):
+        raise TraceError(source, [f"the reading floor is {reading_floor!r}; give a standard "
+                                  "error >= 0 V"])
+    misses = reading_misses(t, v, sign, u, math.hypot(resolution[1] / math.sqrt(12.0),
+                                                        reading_floor), fit_offset,
+                            floor_stated=reading_floor > 0)
     # Without stated uncertainties, cursor readings are taken to err by about the same
     # number of volts at every extremum (relative weights, unknown scale).
     envelope = diagnose_envelope(
-        t, amplitude, u if u is not None else np.ones(n), relative=u is None, kind="peaks"
+        t, amplitude, u if u is not None else np.ones(n), relative=u is None, kind="peaks",
+        misses=misses,
     )
     every = np.ones(n, dtype=bool)
     main = _estimate(
