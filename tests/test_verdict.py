@@ -56,7 +56,8 @@ def explained(tmp_path_factory, lossy_fixture):
 def _verdict(fixture, comparison, measured=None) -> str:
     outcomes = list(comparison.outcomes)
     findings = tuple(write_loop_findings(fixture, outcomes))
-    return write_verdict(fixture, measured or comparison.measured, outcomes, findings)
+    return write_verdict(fixture, measured or comparison.measured, outcomes, findings,
+                         next_steps=comparison.next_measurements)
 
 
 def test_the_best_candidate_is_named_with_its_fitted_loss(lossy_fixture, explained):

@@ -28,6 +28,7 @@ from xcheck.engines.exact import ExactEngine, dominant_ring
 from xcheck.engines.modes import natural_modes_named
 from xcheck.engines.theory import TheoryNotApplicable, characterise
 from xcheck.errors import SimulationError, XcheckError
+from xcheck.fitting.next_measurement import next_measurements
 from xcheck.fitting.fit import FitResult, fit_candidate
 from xcheck.fitting.observation import Observation
 from xcheck.fixture.model import Fixture
@@ -130,10 +131,12 @@ def run_comparison(
     loop_findings = tuple(write_loop_findings(fixture, ordered, alpha))
     findings = tuple(Finding("implausible-value", note) for note in implausible_values(fixture))
     findings += tuple(sanity_findings(ordered, measured.damped_frequency_hz.value,
-                                      measured.event_size))
-    verdict = write_verdict(fixture, measured, ordered, loop_findings, findings)
+                                      measured.event_size, measured.probe_factor))
+    best = next((o for o in ordered if o.ranked.rank == 1 and not o.failed), None)
+    steps = next_measurements(fixture, best.fit) if best is not None else ()
+    verdict = write_verdict(fixture, measured, ordered, loop_findings, findings, steps)
     return Comparison(fixture, measured, observation, tuple(ordered), verdict, tuple(inputs),
-                      loop_findings, {}, version, findings)
+                      loop_findings, {}, version, findings, steps)
 
 
 def _structural_rungs(fixture: Fixture, candidates: list[Candidate], fits: list[FitResult],

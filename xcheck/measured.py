@@ -96,6 +96,9 @@ class Measured(ABC):
     #: The instrument's noise (V): the pre-event scatter, with the converter's
     #: quantisation (q^2 / 12) where the baseline hides it; None without a baseline.
     instrument_noise: float | None = None
+    #: The probe attenuation a trace's preamble stated and its values were multiplied
+    #: by (1 when none was applied).
+    probe_factor: float = 1.0
 
     @property
     def aperiodic(self) -> bool:
@@ -410,6 +413,11 @@ def measure(
     else:
         notes.extend(estimate.envelope.findings)
         findings.extend(_envelope_findings(estimate))
+    if found.probe_factor != 1.0:
+        notes.insert(0, (
+            f"The file's preamble states a probe attenuation of {found.probe_factor:g}: its "
+            f"values were multiplied by {found.probe_factor:g} (taken as volts at the scope "
+            "input). If the export is already scaled to the probe tip, delete that line."))
     instrument = None
     if alignment.pre_event_samples > 10 and math.isfinite(alignment.noise_rms) \
             and alignment.noise_rms > 0:
@@ -420,7 +428,7 @@ def measure(
             instrument = math.hypot(instrument, found.resolution / math.sqrt(12.0))
     return MeasuredTrace(str(trace), found.time, found.voltage, excluded, None, estimate,
                          alignment, tuple(findings), tuple(notes),
-                         instrument_noise=instrument)
+                         instrument_noise=instrument, probe_factor=found.probe_factor)
 
 
 def _flagged_readings(time: np.ndarray, estimate: RingdownEstimate) -> np.ndarray:

@@ -111,6 +111,9 @@ class Comparison:
     ngspice_version: str = ""
     #: What an engineer would catch first (:func:`xcheck.sanity.sanity_findings`).
     findings: tuple[Finding, ...] = ()
+    #: Readings that would cut the best candidate's uncertainties most
+    #: (:func:`xcheck.fitting.next_measurement.next_measurements`), best first.
+    next_measurements: tuple = ()
 
     @property
     def best(self) -> CandidateOutcome | None:

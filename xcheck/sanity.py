@@ -38,7 +38,7 @@ def _decades(factor: float) -> int | None:
     return nearest if nearest != 0 and abs(exponent - nearest) < DECADE_TOLERANCE else None
 
 
-def _gain_finding(name: str, gain: float) -> Finding | None:
+def _gain_finding(name: str, gain: float, probe_factor: float = 1.0) -> Finding | None:
     if not math.isfinite(gain):
         return None
     if gain < 0:
@@ -48,6 +48,12 @@ def _gain_finding(name: str, gain: float) -> Finding | None:
     if 1 / GAIN_LIMIT <= gain <= GAIN_LIMIT:
         return None
     decade = _decades(gain)
+    if probe_factor != 1.0 and abs(math.log10(gain / abs(probe_factor))) < DECADE_TOLERANCE:
+        return Finding("probe-factor", (
+            f"the file's preamble states a probe attenuation of {probe_factor:g} and its values "
+            f"were multiplied by it, and the best fit needed a {name} of {gain:.4g}: the export "
+            "was probably already scaled to the probe tip, so the factor was applied twice; "
+            "delete the probe line from the file's preamble and compare again"))
     if decade is not None:
         return Finding("gain-decade", (
             f"the best fit needed a {name} of {gain:.4g}, a factor of 10^{decade}: a probe "
@@ -59,7 +65,7 @@ def _gain_finding(name: str, gain: float) -> Finding | None:
 
 
 def sanity_findings(outcomes: list[CandidateOutcome], measured_f_d: float,
-                    event_size: float) -> list[Finding]:
+                    event_size: float, probe_factor: float = 1.0) -> list[Finding]:
     """The sanity findings of a comparison.
 
     Parameters
@@ -70,6 +76,8 @@ def sanity_findings(outcomes: list[CandidateOutcome], measured_f_d: float,
         The measured ring frequency (Hz); 0 when the measurement does not ring.
     event_size
         The measured event's size (V), which an offset is judged against.
+    probe_factor
+        The probe attenuation the trace's preamble stated and the reader applied.
     """
     findings: list[Finding] = []
     best = next((o for o in outcomes if o.ranked.rank == 1), None)
@@ -77,7 +85,7 @@ def sanity_findings(outcomes: list[CandidateOutcome], measured_f_d: float,
         nuisance = best.fit.nuisance
         for name in ("gain", "amplitude"):
             if name in nuisance:
-                found = _gain_finding(name, nuisance[name][0])
+                found = _gain_finding(name, nuisance[name][0], probe_factor)
                 if found:
                     findings.append(found)
         if "offset" in nuisance and event_size > 0:

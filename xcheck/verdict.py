@@ -221,7 +221,8 @@ def _bound_sentence(fixture: Fixture, value: FittedValue) -> str:
 
 
 def write_verdict(fixture: Fixture, measured: Measured, outcomes: list[CandidateOutcome],
-                  loop_findings: tuple[str, ...], findings: tuple = ()) -> str:
+                  loop_findings: tuple[str, ...], findings: tuple = (),
+                  next_steps: tuple = ()) -> str:
     """One paragraph a reviewer can read: best candidate, the fitted extra, how much
     worse the as-measured model does, and the measured-side findings.
 
@@ -305,6 +306,8 @@ def write_verdict(fixture: Fixture, measured: Measured, outcomes: list[Candidate
             )
     parts.extend(loop_findings)
     parts.extend(measured.findings)
+    if next_steps:
+        parts.append(f"Next measurement: {next_steps[0].sentence}")
     parts = [_sentence(p) for p in parts]
     if best.engines_disagree:
         parts.append(

@@ -171,6 +171,7 @@ def read_trace(
         clipped=detect_clipping(volts, resolution, extremes=(top * scale, bottom * scale)),
         resolution=resolution,
         channels=tuple(c.text for c in plan.channels),
+        probe_factor=(plan.meta.probe.value if plan.meta.probe is not None else 1.0),
     )
 
 

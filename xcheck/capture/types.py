@@ -78,6 +78,9 @@ class Trace:
         The quantisation step (V) when the values visibly sit on a grid, else None.
     channels
         Every channel name available in the file (the time column excluded).
+    probe_factor
+        The probe attenuation the preamble stated and :attr:`voltage` was multiplied by
+        (1 when none was applied).
     """
 
     time: np.ndarray
@@ -88,6 +91,7 @@ class Trace:
     clipped: np.ndarray | None = None
     resolution: float | None = None
     channels: tuple[str, ...] = ()
+    probe_factor: float = 1.0
 
     def __post_init__(self) -> None:
         time = _read_only(self.time, float)

@@ -161,6 +161,12 @@ def markdown(comparison: Comparison, data: dict[str, Any]) -> str:
                          f"= {value}. {md(group.reason)}.")
     if not any_group:
         lines.append("- Every fitted value is determined separately by this measurement.")
+    if comparison.next_measurements:
+        lines += ["", "## Next measurement", "",
+                  "Readings that would cut the best candidate's uncertainties most (first-order "
+                  "propagation, JCGM 100 section 5; meter accuracies assumed as stated):", ""]
+        lines += [f"{k}. {md(m.sentence[0].upper() + m.sentence[1:])}."
+                  for k, m in enumerate(comparison.next_measurements, 1)]
     lines += ["", "## Measured ring-down", ""]
     lines += _measured_lines(data["measured"])
     lines += ["", "![Residuals per candidate](residuals.png)", ""]

@@ -32,6 +32,11 @@
 - ``findings``: list of {code, text}: what to check before reading the numbers (codes
   ``gain``, ``gain-decade``, ``gain-sign``, ``offset``, ``time-scale``; see
   :mod:`xcheck.sanity`; ``implausible-value``, see :mod:`xcheck.fixture.plausibility`)
+- ``next_measurements``: list, best first, of {measure, instrument, improves,
+  standard_uncertainty_now (null for a member of a sum the data cannot split),
+  standard_uncertainty_after, unit, reduction (1 - after / now), text}: the readings
+  that would cut the best candidate's uncertainties most (see
+  :mod:`xcheck.fitting.next_measurement`)
 - ``inputs``: list of {role, path, sha256}; ``versions``; ``seeds``; ``safety``.
 All numbers are SI (s, V, ohm, H, F, Hz, 1/s); non-finite numbers are written as null.
 Numbers are written to :data:`SIGNIFICANT_DIGITS` significant digits, so that the same
@@ -219,6 +224,12 @@ def summary(comparison: Comparison) -> dict[str, Any]:
         "measured": _measured_json(comparison.measured),
         "loop_findings": list(comparison.loop_findings),
         "findings": [{"code": f.code, "text": f.text} for f in comparison.findings],
+        "next_measurements": [
+            {"measure": m.measure, "instrument": m.instrument, "improves": m.improves,
+             "standard_uncertainty_now": _finite(m.before),
+             "standard_uncertainty_after": _finite(m.after), "unit": m.unit,
+             "reduction": _finite(m.reduction), "text": m.sentence}
+            for m in comparison.next_measurements],
         "inputs": [{"role": i.role, "path": i.path, "sha256": i.sha256} for i in comparison.inputs],
         "versions": versions(comparison),
         "seeds": dict(comparison.seeds),

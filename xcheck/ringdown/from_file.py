@@ -57,6 +57,9 @@ class FileRingdown:
         A peak table's reading step of the time column (s), or None.
     resolution
         A trace's converter step (V), or None.
+    probe_factor
+        The probe attenuation a trace's preamble stated and its values were multiplied
+        by (1 when none).
     """
 
     source: str
@@ -70,6 +73,7 @@ class FileRingdown:
     uncertainty: np.ndarray | None = None
     time_resolution: float | None = None
     resolution: float | None = None
+    probe_factor: float = 1.0
 
     @property
     def is_peak_table(self) -> bool:
@@ -153,4 +157,5 @@ def ringdown_from_file(
     )
     return FileRingdown(str(path), estimate, np.asarray(aligned.time),
                         np.asarray(aligned.voltage), np.asarray(aligned.clipped), alignment,
-                        trace.source, trace.column, resolution=trace.resolution)
+                        trace.source, trace.column, resolution=trace.resolution,
+                        probe_factor=trace.probe_factor)
