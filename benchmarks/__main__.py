@@ -16,7 +16,8 @@ import tempfile
 from dataclasses import dataclass
 from pathlib import Path
 
-from benchmarks import bench_crb, bench_exact, bench_ngspice, bench_reader, bench_startup
+from benchmarks import (bench_crb, bench_exact, bench_ngspice, bench_reader, bench_startup,
+                        bench_sweep)
 from benchmarks.table import NOT_MEASURED, Row, machine, render
 
 REPO = Path(__file__).resolve().parent.parent
@@ -35,10 +36,11 @@ class Sizes:
     startup_runs: int
     exact_sets: int
     exact_spice_runs: int
+    sweep_runs: int
 
 
-FULL = Sizes(1_000_000, 7, 10_000_000, 3, 300, 10, 7, 1000, 20)
-QUICK = Sizes(20_000, 1, 100_000, 1, 2, 0, 1, 10, 1)
+FULL = Sizes(1_000_000, 7, 10_000_000, 3, 300, 10, 7, 1000, 20, 200)
+QUICK = Sizes(20_000, 1, 100_000, 1, 2, 0, 1, 10, 1, 4)
 
 
 def not_measured() -> list[Row]:
@@ -51,7 +53,7 @@ def not_measured() -> list[Row]:
 
 
 def all_rows(sizes: Sizes, large: bool, workdir: Path) -> list[Row]:
-    """Every row of the table, in order (a) to (f).
+    """Every row of the table, in order (a) to (g).
 
     Parameters
     ----------
@@ -77,6 +79,7 @@ def all_rows(sizes: Sizes, large: bool, workdir: Path) -> list[Row]:
     rows += bench_exact.rows(sizes.exact_sets, sizes.exact_spice_runs)
     rows += not_measured()
     rows += bench_startup.rows(sizes.startup_runs)
+    rows += bench_sweep.rows(sizes.sweep_runs)
     return rows
 
 

@@ -25,6 +25,8 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "ringdown": ("ringdown", "estimate frequency and decay of a measured trace or peak table"),
     "compare": ("compare", "rank candidate models against a measurement and write a report"),
     "demo": ("demo", "run the whole comparison on the embedded, invented demo"),
+    "batch": ("batch", "compare every fixture in a folder with its capture, in parallel, "
+              "and write an index"),
 }
 
 EXIT_OK = 0

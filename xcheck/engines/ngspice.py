@@ -35,7 +35,7 @@ import os
 import queue
 import re
 import threading
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from multiprocessing.connection import Connection
@@ -281,6 +281,7 @@ class NgspiceWorker:
         self._process: multiprocessing.process.BaseProcess | None = None
         self._conn: Connection | None = None
         self._version = ""
+        self.runs = 0  # decks the running child has served (for recycling it)
 
     @property
     def pid(self) -> int | None:
@@ -347,6 +348,7 @@ class NgspiceWorker:
         """
         self._ensure_started()
         assert self._conn is not None and self._process is not None
+        self.runs += 1
         try:
             self._conn.send(run)
         except (BrokenPipeError, OSError):
@@ -383,7 +385,7 @@ class NgspiceWorker:
         """Stop the child process: ask it to exit (unless ``force``), then kill it if it
         is still there after a second."""
         process, conn = self._process, self._conn
-        self._process, self._conn = None, None
+        self._process, self._conn, self.runs = None, None, 0
         if conn is not None:
             try:
                 if not force and process is not None and process.is_alive():
@@ -498,6 +500,18 @@ def _default_worker() -> NgspiceWorker:
         _shared_worker = NgspiceWorker()
         atexit.register(_shared_worker.stop)
     return _shared_worker
+
+
+def recycle_shared_worker(should_stop: Callable[[int, int], bool]) -> bool:
+    """Stop the shared child of :func:`run_deck` when ``should_stop(pid, runs)`` is true
+    (``runs``: decks it has served); the next run starts a fresh one. Long sweeps use it
+    because the library's memory grows run after run. Returns True when it was stopped."""
+    with _shared_lock:
+        worker = _shared_worker
+        if worker is None or worker.pid is None or not should_stop(worker.pid, worker.runs):
+            return False
+        worker.stop()
+        return True
 
 
 def run_deck(
