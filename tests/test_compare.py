@@ -277,6 +277,19 @@ def test_a_misread_cursor_reading_is_left_out_unless_kept(tmp_path, lossy_fixtur
     extra = {v.label: v for v in result.outcome("extra-loss").fit.fitted}["loop.extra_resistance"]
     assert abs(extra.value - HIDDEN_EXTRA) < 3 * extra.stderr  # the fit's own error, 1.5 mOhm
     assert result.verdict.startswith("The best explanation")
+    # The same table with reading #6 corrected (its row removed is what the fit used;
+    # here the true reading is restored): the same fitted loss within its standard error.
+    import numpy as np
+
+    rows = path.read_text(encoding="ascii").splitlines()
+    t6, v6 = (float(x) for x in rows[7].split(",")[:2])
+    rows[7] = f"{t6:.6f},{v6 - 0.31 * np.sign(v6):.4f},0.01"
+    corrected_path = tmp_path / "corrected.csv"
+    corrected_path.write_text("\n".join(rows) + "\n", encoding="ascii")
+    corrected = run_comparison(lossy_fixture, peaks=corrected_path, use_ngspice=False)
+    fixed = {v.label: v for v in corrected.outcome("extra-loss").fit.fitted}["loop.extra_resistance"]
+    assert corrected.observation.time.size == 10
+    assert abs(extra.value - fixed.value) < extra.stderr
     kept = run_comparison(lossy_fixture, peaks=path, use_ngspice=False, keep_all=True)
     assert kept.observation.time.size == 10
     assert "left out of every fit" not in kept.verdict
