@@ -250,7 +250,8 @@ def analyse_aperiodic(
         a, d = float(best.params[0]), float(best.params[1])
         w0 = math.sqrt(a * a - d) / scale
         zeta = zeta_free.value if zeta_free else a / math.sqrt(a * a - d)
-        err = f" ± {zeta_free.stderr:.2g}" if zeta_free and zeta_free.stderr > 0 else ""
+        err = (f" ± {zeta_free.stderr:.2g}"
+               if zeta_free and 0 < zeta_free.stderr < math.inf else "")
         return AperiodicOutcome(
             "underdamped",
             problem=(
@@ -350,7 +351,13 @@ def _zeta(params: np.ndarray, cov: np.ndarray) -> Estimate | None:
         return float(p[0] / math.sqrt(max(p[0] * p[0] - p[1], 1e-300)))
 
     grad = gradient(zeta, params, cov)
-    return Estimate(zeta(params), math.sqrt(max(float(grad @ cov @ grad), 0.0)))
+    # An undetermined direction of the free fit has an infinite (or huge) variance:
+    # zeta's error is then unknown, never a warning or a NaN.
+    with np.errstate(over="ignore", invalid="ignore"):
+        variance = float(grad @ cov @ grad)
+    if not math.isfinite(variance):
+        variance = math.inf
+    return Estimate(zeta(params), math.sqrt(max(variance, 0.0)))
 
 
 def _physical(
@@ -430,8 +437,13 @@ def _assemble(
     every = funcs + derived
     grads = np.array([gradient(f, fit.params, noise.cov) for f in every])
     values = np.array([f(fit.params) for f in every])
-    cov = grads @ noise.cov @ grads.T
-    crb = grads @ noise.crb @ grads.T
+    # A root far faster than the sampling (a time constant below one sample) leaves its
+    # parameters all but undetermined: their variances overflow to "unknown" (inf).
+    with np.errstate(over="ignore", invalid="ignore"):
+        cov = np.nan_to_num(grads @ noise.cov @ grads.T, nan=math.inf, posinf=math.inf,
+                            neginf=-math.inf)
+        crb = np.nan_to_num(grads @ noise.crb @ grads.T, nan=math.inf, posinf=math.inf,
+                            neginf=-math.inf)
 
     def est(i: int) -> Estimate:
         return Estimate(

@@ -50,8 +50,13 @@ _SERIES_TERMS = 9
 
 
 def _exp(x: np.ndarray) -> np.ndarray:
-    """``exp`` with the argument clipped so that a wild trial step cannot overflow."""
-    return np.exp(np.clip(x, -745.0, 700.0))
+    """``exp`` with the argument clipped so that a wild trial step cannot overflow.
+
+    The upper clip (e^300, about 1e130) leaves room for the products the bases form
+    with a rate (``a * sinh``), which an optimiser's trial step may make large too;
+    no decaying model the fit accepts comes near it.
+    """
+    return np.exp(np.clip(x, -745.0, 300.0))
 
 
 def second_order_basis(u: np.ndarray, a: float, d: float) -> tuple[np.ndarray, np.ndarray]:
