@@ -47,7 +47,7 @@ from scipy.optimize import least_squares, linprog
 from xcheck.errors import TraceError
 from xcheck.fitting.stats import covariance_from_jacobian
 from xcheck.ringdown.envelope import diagnose_envelope
-from xcheck.ringdown.reading_misses import gross_miss, gross_miss_problem, reading_misses
+from xcheck.ringdown.reading_misses import reading_misses
 from xcheck.ringdown.result import (
     EnvelopeDiagnostics,
     Estimate,
@@ -184,9 +184,6 @@ def estimate_from_peaks(
     misses = reading_misses(t, v, sign, u, math.hypot(resolution[1] / math.sqrt(12.0),
                                                         reading_floor), fit_offset,
                             floor_stated=reading_floor > 0)
-    typo = gross_miss(misses, v)
-    if typo is not None:
-        raise TraceError(source, [gross_miss_problem(typo, t, v)])
     # Without stated uncertainties, cursor readings are taken to err by about the same
     # number of volts at every extremum (relative weights, unknown scale).
     envelope = diagnose_envelope(

@@ -44,13 +44,6 @@ ORDINARY_MISS = 0.05
 #: Family-wise false-flag probability (common practice, no source).
 FAMILY_LEVEL = 0.01
 
-#: A reading this many times above the ring-down of the others at its time (60 dB), or
-#: at a time where that ring-down exceeds every reading by this factor, is no misread
-#: cursor but a typing slip (a wrong exponent or unit prefix): a cursor sits on the
-#: trace as drawn, and a screen of 8-bit samples resolves about 1 part in 256 of full
-#: scale (common practice, no source). Such a row is refused, not flagged.
-GROSS_MISS = 1000.0
-
 
 @dataclass(frozen=True)
 class ReadingMiss:
@@ -306,48 +299,3 @@ def _findings(misses: tuple[ReadingMiss, ...], threshold: float, detectable: flo
 def _volts(value: float) -> str:
     return format_eng(value, "V")
 
-
-def gross_miss(test: MissTest, values: np.ndarray) -> ReadingMiss | None:
-    """The reading that misses the ring-down of the others by a typing slip, if any.
-
-    Parameters
-    ----------
-    test
-        The leave-one-out test of :func:`reading_misses`.
-    values
-        The readings as written (V), in the same order.
-
-    Returns
-    -------
-    ReadingMiss or None
-        The worst reading whose magnitude about the others' offset is more than
-        :data:`GROSS_MISS` times their envelope at its time, or that sits at a time
-        where their envelope exceeds every reading by that factor; None when none does.
-    """
-    v = np.asarray(values, float)
-    largest = float(np.max(np.abs(v))) if v.size else 0.0
-    worst, worst_factor = None, GROSS_MISS
-    for m in test.misses:
-        # sign * (reading - offset) = envelope * (1 + fraction); inf when envelope is 0.
-        own = m.envelope * (1.0 + m.fraction) if math.isfinite(m.fraction) else math.inf
-        above = abs(own) / m.envelope if m.envelope > 0 else math.inf
-        before = m.envelope / largest if largest > 0 else 0.0
-        factor = max(above, before)
-        if factor > worst_factor:
-            worst, worst_factor = m, factor
-    return worst
-
-
-def gross_miss_problem(miss: ReadingMiss, times: np.ndarray, values: np.ndarray) -> str:
-    """The problem sentence for a :func:`gross_miss` (a ``TraceError`` problem)."""
-    i = miss.index
-    t, v = float(np.asarray(times, float)[i]), float(np.asarray(values, float)[i])
-    others = len(np.asarray(values)) - 1
-    return (
-        f"row {i + 1} ({format_eng(t, 's')}, {format_eng(v, 'V')}) lies far off the ring-down "
-        f"of the other {others} readings, which at that time is "
-        f"{f'{miss.envelope:.3g} V' if miss.envelope > 1e-300 else 'below 1e-300 V'}: more "
-        f"than {GROSS_MISS:g} times off, beyond any misread cursor. Check row {i + 1} for a "
-        "mistyped time or value (a wrong exponent or unit prefix, such as 1e5 for 1e-5, or a "
-        "time in ms in a column of s), or leave the row out"
-    )
