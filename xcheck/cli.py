@@ -27,6 +27,8 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "demo": ("demo", "run the whole comparison on the embedded, invented demo"),
     "batch": ("batch", "compare every fixture in a folder with its capture, in parallel, "
               "and write an index"),
+    "sweep": ("sweep", "Monte Carlo over the tolerances: the spread of the waveform, f_d and "
+              "alpha, sensitivities, and which tolerance explains the measurement"),
 }
 
 EXIT_OK = 0
