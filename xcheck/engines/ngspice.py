@@ -24,6 +24,11 @@ node and flowing through it, which for the loop's current-sense source, oriented
 order, is the loop current in the direction the loop is written. With a current probe
 (:attr:`DeckRun.probe_current`) the probed signal is that 0 V source's branch current
 (``v_probe_l1#branch``), in amperes where a voltage probe's volts would be.
+
+The same child also runs small-signal ``.ac`` decks (:class:`AcDeckRun`,
+:func:`run_ac_deck`): their vectors are complex and come back as an :class:`AcPlot`
+(ngspice's frequencies and the complex output); the decks are written by
+:mod:`xcheck.engines.ac_deck`.
 """
 
 from __future__ import annotations
@@ -93,6 +98,48 @@ class DeckRun:
     current_sense: str | None = None
     name: str = "deck"
     probe_current: str | None = None
+
+
+@dataclass(frozen=True)
+class AcDeckRun:
+    """One ``.ac`` deck to run and what to read back (see :func:`run_ac_deck`).
+
+    Attributes
+    ----------
+    deck_text
+        The whole deck, title line first, one ``.ac`` line, ``.end`` last.
+    probe
+        (plus node, minus node) of the output voltage; ground is ``"0"``.
+    name
+        What to call the deck in messages.
+    probe_current
+        Name of the 0 V source whose branch current is the output, or None to read
+        the voltage between the ``probe`` nodes.
+    """
+
+    deck_text: str
+    probe: tuple[str, str]
+    name: str = "deck"
+    probe_current: str | None = None
+
+
+@dataclass(frozen=True)
+class AcPlot:
+    """ngspice's small-signal sweep.
+
+    Attributes
+    ----------
+    frequency
+        ngspice's frequencies (Hz), increasing.
+    response
+        Complex output at each frequency (per unit of the ``ac 1`` drive).
+    notes
+        ngspice's warnings, each prefixed ``"ngspice: "``.
+    """
+
+    frequency: np.ndarray
+    response: np.ndarray
+    notes: tuple[str, ...] = ()
 
 
 # --------------------------------------------------------------------------------------
@@ -244,6 +291,75 @@ def _run_in_child(shared: Any, run: DeckRun) -> dict[str, Any]:
         shared.remove_circuit()  # "remcirc": free the circuit
 
 
+_AC_LINE = re.compile(r"^\s*\.ac\s+\S+\s+\S+\s+\S+\s+(\S+)", re.IGNORECASE | re.MULTILINE)
+
+
+def _complex_vector(plot: dict[str, Any], key: str) -> np.ndarray:
+    return np.asarray(plot[key]._data, dtype=complex)
+
+
+def _run_ac_in_child(shared: Any, run: AcDeckRun) -> dict[str, Any]:
+    """Load, run, read back and free one ``.ac`` deck. Raises SimulationError on failure."""
+    title = run.deck_text.splitlines()[0].strip() if run.deck_text.strip() else ""
+    label = f"deck {run.name!r}" + (f" ({title})" if title and title != run.name else "")
+    try:
+        rc = _returned_code(shared.load_circuit, run.deck_text)
+        errors = _error_lines(shared)
+        if rc or errors:
+            raise SimulationError(
+                f"ngspice rejected {label}: " + ("; ".join(errors) or f"return code {rc}")
+            )
+        rc = _returned_code(shared.run)
+        errors = _error_lines(shared)
+        plot_name = shared.last_plot
+        if rc or errors or not plot_name.startswith("ac"):
+            detail = "; ".join(errors) or (
+                f"return code {rc}" if rc else f"no AC results (last plot {plot_name!r})"
+            )
+            raise SimulationError(f"ngspice failed to run {label}: {detail}")
+        plot = shared.plot(None, plot_name)
+        frequency = _complex_vector(plot, "frequency").real
+        match = _AC_LINE.search(run.deck_text)
+        stop = float(match.group(1)) if match else None
+        if frequency.size < 2 or (stop is not None and frequency[-1] < stop * (1 - 1e-6)):
+            reached = frequency[-1] if frequency.size else 0.0
+            raise SimulationError(
+                f"ngspice stopped {label} early, at {reached:.6g} Hz of {stop} Hz"
+            )
+        if run.probe_current:
+            key = f"{run.probe_current.lower()}#branch"
+            if key not in plot:
+                raise SimulationError(
+                    f"{label}: no branch current {key!r} in ngspice's results "
+                    f"(vectors: {', '.join(sorted(plot))})"
+                )
+            response = _complex_vector(plot, key)
+        else:
+            parts = []
+            for node in run.probe:
+                if node == "0":
+                    parts.append(0.0)
+                    continue
+                keys = [k for k in (node.lower(), f"v({node.lower()})") if k in plot]
+                if not keys:
+                    raise SimulationError(
+                        f"{label}: the probe node {node!r} is not in ngspice's results "
+                        f"(vectors: {', '.join(sorted(plot))})"
+                    )
+                parts.append(_complex_vector(plot, keys[0]))
+            response = parts[0] - parts[1]
+        return {
+            "frequency": frequency,
+            "response": np.broadcast_to(response, frequency.shape).astype(complex),
+            "warnings": [
+                line.strip() for line in shared._stdout + shared._stderr if "warning" in line.lower()
+            ],
+        }
+    finally:
+        shared.destroy()
+        shared.remove_circuit()
+
+
 def _serve(conn: Connection) -> None:
     """Child process main loop: load ngspice, then answer requests until told to stop."""
     try:
@@ -261,7 +377,8 @@ def _serve(conn: Connection) -> None:
         if request is None:
             return
         try:
-            conn.send(("ok", _run_in_child(shared, request)))
+            runner = _run_ac_in_child if isinstance(request, AcDeckRun) else _run_in_child
+            conn.send(("ok", runner(shared, request)))
         except SimulationError as exc:
             conn.send(("error", str(exc)))
         except Exception as exc:  # noqa: BLE001 - report anything else as a failed run
@@ -346,6 +463,45 @@ class NgspiceWorker:
         SimulationError
             ngspice missing, deck rejected, run failed, hung or crashed.
         """
+        payload = self._exchange(
+            run, timeout, "check the deck's .tran stop time and maximum step, or allow a "
+            "longer timeout")
+        notes = tuple(f"ngspice: {line}" for line in dict.fromkeys(payload["warnings"]))
+        return Waveform(
+            time=payload["time"],
+            probe_voltage=payload["probe"],
+            loop_current=payload["current"],
+            engine="ngspice",
+            notes=notes,
+        )
+
+    def run_ac(self, run: AcDeckRun, timeout: float = 60.0) -> AcPlot:
+        """Run one ``.ac`` deck and return its complex output.
+
+        Parameters
+        ----------
+        run
+            The deck and what to read back.
+        timeout
+            Seconds the run may take once the child is up.
+
+        Returns
+        -------
+        AcPlot
+
+        Raises
+        ------
+        SimulationError
+            ngspice missing, deck rejected, run failed, hung or crashed.
+        """
+        payload = self._exchange(
+            run, timeout, "check the deck's .ac points per decade and range, or allow a "
+            "longer timeout")
+        notes = tuple(f"ngspice: {line}" for line in dict.fromkeys(payload["warnings"]))
+        return AcPlot(payload["frequency"], payload["response"], notes)
+
+    def _exchange(self, run: DeckRun | AcDeckRun, timeout: float, hint: str) -> dict[str, Any]:
+        """Send one request to the child and return its answer's payload."""
         self._ensure_started()
         assert self._conn is not None and self._process is not None
         self.runs += 1
@@ -358,8 +514,7 @@ class NgspiceWorker:
             self.stop(force=True)
             raise SimulationError(
                 f"deck {run.name!r}: ngspice did not finish within {timeout:g} s and was "
-                "stopped; check the deck's .tran stop time and maximum step, or allow a "
-                "longer timeout"
+                f"stopped; {hint}"
             )
         try:
             status, payload = self._conn.recv()
@@ -372,14 +527,7 @@ class NgspiceWorker:
             ) from None
         if status != "ok":
             raise SimulationError(payload)
-        notes = tuple(f"ngspice: {line}" for line in dict.fromkeys(payload["warnings"]))
-        return Waveform(
-            time=payload["time"],
-            probe_voltage=payload["probe"],
-            loop_current=payload["current"],
-            engine="ngspice",
-            notes=notes,
-        )
+        return payload
 
     def stop(self, force: bool = False) -> None:
         """Stop the child process: ask it to exit (unless ``force``), then kill it if it
@@ -557,6 +705,44 @@ def run_deck(
         return _default_worker().run(
             DeckRun(deck_text, tuple(probe), current_sense, name, probe_current), timeout
         )
+
+
+def run_ac_deck(
+    deck_text: str,
+    *,
+    probe: tuple[str, str],
+    name: str = "deck",
+    timeout: float = 60.0,
+    probe_current: str | None = None,
+) -> AcPlot:
+    """Run one ``.ac`` deck in the module's shared ngspice child process.
+
+    Parameters
+    ----------
+    deck_text
+        The deck (title line first, one ``.ac`` line and ``.end`` included).
+    probe
+        (plus node, minus node): the output is ``v(plus) - v(minus)``.
+    name
+        The deck's name for messages.
+    timeout
+        Seconds the run may take.
+    probe_current
+        Voltage source whose branch current is the output, or None.
+
+    Returns
+    -------
+    AcPlot
+        ngspice's frequencies (Hz) and complex output.
+
+    Raises
+    ------
+    SimulationError
+        ngspice missing, deck rejected, run failed, hung past ``timeout`` or crashed.
+    """
+    with _shared_lock:
+        return _default_worker().run_ac(AcDeckRun(deck_text, tuple(probe), name, probe_current),
+                                        timeout)
 
 
 def simulate_ngspice(

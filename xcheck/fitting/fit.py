@@ -268,7 +268,7 @@ def _fixed_value_budget(fixture: Fixture, candidate: Candidate, model: Candidate
 
 def _fit(fixture: Fixture, candidate: Candidate, obs: Observation,
          free: tuple[FreeParameter, ...]) -> FitResult:
-    model = CandidateModel(fixture, candidate, free)
+    model = obs.fit_model(fixture, candidate, free)
     start = np.array([candidate.parameters.get(f.key, f.start) or f.start for f in free], float)
     lower = np.array([f.lower for f in free], float)
     upper = np.array([f.upper for f in free], float)
@@ -301,7 +301,7 @@ def _fit(fixture: Fixture, candidate: Candidate, obs: Observation,
     n = weighted.size
     k = len(x0)
     chi2 = float(np.sum(weighted**2))
-    criteria = obs.criteria(chi2, n, k)
+    criteria = obs.criteria(chi2, n, k, weighted=weighted)
     n_eff = criteria.n_effective
     dof = max(n - k, 1)
     jac_x = solution.jac

@@ -144,9 +144,19 @@ class Observation(ABC):
     def deviance(self, chi2: float, n: int, n_effective: float) -> float:
         """``-2 ln L`` up to a constant, from the weighted residual sum of squares."""
 
-    def criteria(self, chi2: float, n: int, k: int) -> Criteria:
+    def fit_model(self, fixture, candidate, free):
+        """The model the fit drives for ``candidate``'s ``free`` values: the exact
+        engine's time response (:class:`xcheck.fitting.model.CandidateModel`); a sweep
+        returns its frequency response instead."""
+        from xcheck.fitting.model import CandidateModel
+
+        return CandidateModel(fixture, candidate, free)
+
+    def criteria(self, chi2: float, n: int, k: int,
+                 weighted: np.ndarray | None = None) -> Criteria:
         """AIC and BIC of ``n`` residuals with weighted sum of squares ``chi2`` and ``k``
-        fitted values (see :mod:`xcheck.fitting.stats`)."""
+        fitted values (see :mod:`xcheck.fitting.stats`); ``weighted`` (the residuals
+        themselves) lets a joint observation split them by measurement."""
         n_effective = self.sample_count(n)
         deviance = self.deviance(chi2, n, n_effective)
         return Criteria(n_effective, stats.aic(deviance, k), stats.bic(deviance, k, n_effective))
