@@ -3,7 +3,7 @@
 Usage: ``python -m benchmarks [--quick] [--large] [--out FILE]``
 
 - ``--quick``: tiny sizes (a smoke run in seconds; the numbers mean nothing).
-- ``--large``: add the 10-million-row reader rows.
+- ``--large``: add the 10-million-row reader rows and the 10-million-sample compare size.
 - ``--out``: where to write the table (default ``BENCHMARKS.md`` at the repository root).
 """
 
@@ -16,9 +16,9 @@ import tempfile
 from dataclasses import dataclass
 from pathlib import Path
 
-from benchmarks import (bench_crb, bench_exact, bench_ngspice, bench_reader, bench_startup,
-                        bench_sweep)
-from benchmarks.table import NOT_MEASURED, Row, machine, render
+from benchmarks import (bench_compare, bench_crb, bench_exact, bench_ngspice, bench_reader,
+                        bench_startup, bench_sweep)
+from benchmarks.table import Row, machine, render
 
 REPO = Path(__file__).resolve().parent.parent
 
@@ -37,19 +37,13 @@ class Sizes:
     exact_sets: int
     exact_spice_runs: int
     sweep_runs: int
+    compare_sizes: tuple[int, ...]
+    compare_large: int
 
 
-FULL = Sizes(1_000_000, 7, 10_000_000, 3, 300, 10, 7, 1000, 20, 200)
-QUICK = Sizes(20_000, 1, 100_000, 1, 2, 0, 1, 10, 1, 4)
-
-
-def not_measured() -> list[Row]:
-    """Row (e), not measured yet."""
-    return [
-        Row("e", "compare end to end (1e4/1e5/1e6 samples: wall time, growth exponent)",
-            "not set yet", "reading the trace + the ngspice runs alone", "",
-            NOT_MEASURED, "not measured yet: needs the compare end-to-end harness"),
-    ]
+FULL = Sizes(1_000_000, 7, 10_000_000, 3, 300, 10, 7, 1000, 20, 200,
+             (10_000, 100_000, 1_000_000), 10_000_000)
+QUICK = Sizes(20_000, 1, 100_000, 1, 2, 0, 1, 10, 1, 4, (2_000, 5_000), 20_000)
 
 
 def all_rows(sizes: Sizes, large: bool, workdir: Path) -> list[Row]:
@@ -60,7 +54,8 @@ def all_rows(sizes: Sizes, large: bool, workdir: Path) -> list[Row]:
     sizes
         :data:`FULL` or :data:`QUICK`.
     large
-        Also measure the reader on ``sizes.large_rows`` rows.
+        Also measure the reader on ``sizes.large_rows`` rows and compare on
+        ``sizes.compare_large`` samples.
     workdir
         Scratch directory for the generated captures.
 
@@ -77,7 +72,8 @@ def all_rows(sizes: Sizes, large: bool, workdir: Path) -> list[Row]:
     rows += bench_crb.rows(sizes.crb_trials)
     rows += bench_ngspice.rows(sizes.bisection_steps)
     rows += bench_exact.rows(sizes.exact_sets, sizes.exact_spice_runs)
-    rows += not_measured()
+    compare_sizes = [*sizes.compare_sizes, *([sizes.compare_large] if large else [])]
+    rows += bench_compare.rows(compare_sizes, workdir)
     rows += bench_startup.rows(sizes.startup_runs)
     rows += bench_sweep.rows(sizes.sweep_runs)
     return rows
@@ -87,7 +83,8 @@ def main(argv: list[str] | None = None) -> int:
     """Command-line entry: run, write the file, print where it went."""
     parser = argparse.ArgumentParser(prog="python -m benchmarks", description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="tiny sizes (smoke run)")
-    parser.add_argument("--large", action="store_true", help="add the 10-million-row reader rows")
+    parser.add_argument("--large", action="store_true",
+                        help="add the 10-million-row reader rows and compare on 1e7 samples")
     parser.add_argument("--out", type=Path, default=REPO / "BENCHMARKS.md", help="output file")
     args = parser.parse_args(argv)
     when = dt.datetime.now(dt.timezone.utc)

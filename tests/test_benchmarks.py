@@ -34,7 +34,10 @@ EXPECTED = {
     **{f"c-points-{z}": rf"({RATIO}|n/a)" for z in ("0.01", "0.1", "1", "5")},
     **{f"d-{c}": RATIO for c in ("demo", "fourth-order")},
     **{f"d-{c}-agreement": r"\d\.\d\de[-+]\d\d" for c in ("demo", "fourth-order")},
-    "e": "",
+    # Row (e) at the quick sizes (2000 and 5000 samples): a ratio per size, the peak
+    # memory of the largest, the growth exponent (a slope: any sign).
+    **{f"e-{size}": RATIO for size in ("2e3", "5e3")},
+    "e-memory": RATIO, "e-growth": r"-?\d+\.\d\d",
     "f-version": r"[+-]\d+\.\d{3} s", "f-deck": r"[+-]\d+\.\d{3} s",
     "g-sweep": rf"({RATIO})?",  # empty when one CPU is available (row skipped)
 }
@@ -82,8 +85,11 @@ def test_missed_rows_give_a_reason_and_are_listed(quick_table: str) -> None:
         assert "likely reason" in rows[key][6] or "met 1e-4" in rows[key][6], key
     summary = re.search(r"^Missed goals: (.*)\.$", quick_table, re.MULTILINE).group(1)
     assert summary == (", ".join(missed) if missed else "none")
-    # Row (e) says what it waits for.
-    assert "compare end-to-end harness" in rows["e"][6]
+    # Row (e): each size's note gives the wall time, the peak memory and the parts.
+    for size in ("2e3", "5e3"):
+        note = rows[f"e-{size}"][6]
+        assert re.search(r"wall \d+\.\d\d s, peak RSS \d+ MB", note), note
+        assert re.search(r"read \d+\.\d\d s \+ \d+ ngspice runs", note), note
 
 
 @pytest.mark.ngspice

@@ -4,7 +4,9 @@ Two panels, readable in greyscale: the data (light grey) with the fitted model (
 dashed) and the settled level (dotted); below, the distance from the settled level on a
 logarithmic axis, where each exponential term is a straight line (its time constant is
 the inverse slope), with the noise level for scale. Written like every xcheck figure:
-the Agg backend, PNG with :data:`xcheck.atomic.PNG_METADATA` (no time stamp).
+the Agg backend, PNG with :data:`xcheck.atomic.PNG_METADATA` (no time stamp). Long
+records are thinned to the extremes of each pixel column
+(:func:`xcheck.report.decimate.envelope`), so spikes stay visible.
 """
 
 from __future__ import annotations
@@ -20,6 +22,7 @@ import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
 from xcheck.atomic import PNG_METADATA  # noqa: E402
+from xcheck.report.decimate import POINT_SPREAD, columns_of, envelope  # noqa: E402
 from xcheck.report.figures import time_scale  # noqa: E402
 from xcheck.values import format_eng  # noqa: E402
 
@@ -64,10 +67,13 @@ def aperiodic_figure(
         2, 1, figsize=(8.0, 6.4), dpi=110, gridspec_kw={"height_ratios": [3, 2]}
     )
     shown = t <= span
-    top.plot(t[shown] * factor, v[shown], color="#9a9a9a", linewidth=1.4, label="measured")
+    columns = columns_of(fig)
+    shown_t, shown_v = envelope(t[shown], v[shown], columns)
+    top.plot(shown_t * factor, shown_v, color="#9a9a9a", linewidth=1.4, label="measured")
     if excluded is not None and np.any(excluded & shown):
         mask = np.asarray(excluded, dtype=bool) & shown
-        top.plot(t[mask] * factor, v[mask], linestyle="none", marker="x", markersize=3,
+        clipped_t, clipped_v = envelope(t[mask], v[mask], columns)
+        top.plot(clipped_t * factor, clipped_v, linestyle="none", marker="x", markersize=3,
                  color="#555555", label="excluded (clipped)")
     dense = np.linspace(min(0.0, float(np.min(t))) if t.size else 0.0, span, 2000)
     level = estimate.settled_level.value
@@ -84,7 +90,8 @@ def aperiodic_figure(
     top.set_ylabel("voltage (V)")
     distance = np.abs(v[shown] - level)
     positive = distance > 0
-    bottom.plot(t[shown][positive] * factor, distance[positive], linestyle="none", marker=".",
+    far_t, far = envelope(t[shown][positive], distance[positive], columns, spread=POINT_SPREAD)
+    bottom.plot(far_t * factor, far, linestyle="none", marker=".",
                 markersize=1.5, color="#9a9a9a", label="|measured - settled level|")
     bottom.plot(dense * factor, np.abs(estimate.model(dense) - level), color="black",
                 linestyle=(0, (3, 2)), linewidth=0.9, label="|fitted model - settled level|")

@@ -10,6 +10,10 @@ and engineering-unit axis labels. Figures are written with the non-interactive A
 backend and closed after saving, always as PNG (whatever the file's name, so a
 temporary file works) with :data:`xcheck.atomic.PNG_METADATA`: the xcheck Software
 chunk and no time stamp, so the same figure is the same bytes run after run.
+
+Long records are not drawn sample by sample: each series is thinned to the extremes of
+each pixel column (:func:`xcheck.report.decimate.envelope`), which keeps single-sample
+spikes and clipping visible at any record length.
 """
 
 from __future__ import annotations
@@ -27,6 +31,7 @@ import numpy as np  # noqa: E402
 from matplotlib.ticker import EngFormatter  # noqa: E402
 
 from xcheck.atomic import PNG_METADATA  # noqa: E402
+from xcheck.report.decimate import POINT_SPREAD, columns_of, envelope  # noqa: E402
 from xcheck.values import format_eng  # noqa: E402
 
 if TYPE_CHECKING:
@@ -77,7 +82,8 @@ def _finish(fig: plt.Figure, axis: plt.Axes, path: Path, xlabel: str, ylabel: st
 
 def overlay_figure(path: Path, time: np.ndarray, measured: np.ndarray,
                    curves: Sequence[tuple[str, np.ndarray]], title: str,
-                   peaks: bool = False) -> Path:
+                   peaks: bool = False,
+                   samples: tuple[np.ndarray, np.ndarray] | None = None) -> Path:
     """Measured data with every candidate's prediction overlaid.
 
     Parameters
@@ -92,13 +98,23 @@ def overlay_figure(path: Path, time: np.ndarray, measured: np.ndarray,
         Figure title.
     peaks
         True when the measurement is a peak table (points joined by nothing).
+    samples
+        The measurement to draw as points, when it holds more samples than ``time``
+        (e.g. every sample of the fit window, while the curves are on the fit's
+        decimated times); None draws ``(time, measured)``. Either is thinned to the
+        extremes of each pixel column (a peak table never is).
     """
     factor, prefix = time_scale(float(np.max(np.abs(time))) if time.size else 1.0)
     fig, axis = plt.subplots(figsize=(8.0, 4.2), dpi=110)
-    axis.plot(time * factor, measured, linestyle="none", marker="o",
+    columns = columns_of(fig)
+    shown_t, shown_v = samples if samples is not None else (time, measured)
+    if not peaks:
+        shown_t, shown_v = envelope(shown_t, shown_v, columns, spread=POINT_SPREAD)
+    axis.plot(shown_t * factor, shown_v, linestyle="none", marker="o",
               markersize=5 if peaks else 1.6, color="#222222", label="measured", zorder=3)
     for i, (label, curve) in enumerate(curves):
-        axis.plot(time * factor, curve,
+        curve_t, curve = (time, curve) if peaks else envelope(time, curve, columns)
+        axis.plot(curve_t * factor, curve,
                   linestyle="none" if peaks else LINE_STYLES[i % len(LINE_STYLES)],
                   color=SHADES[i % len(SHADES)], linewidth=1.4,
                   marker=MARKERS[(i + 1) % len(MARKERS)] if peaks else None,
@@ -115,11 +131,13 @@ def residual_figure(path: Path, time: np.ndarray,
     factor, prefix = time_scale(float(np.max(np.abs(time))) if time.size else 1.0)
     fig, axes = plt.subplots(count, 1, figsize=(8.0, 1.6 + 1.3 * count), dpi=110, sharex=True,
                              squeeze=False)
+    columns = columns_of(fig)
     for i, (label, values) in enumerate(residuals):
         axis = axes[i, 0]
         axis.axhspan(-2 * noise_sigma, 2 * noise_sigma, color="#dddddd", zorder=0,
                      label="±2σ noise")
-        axis.plot(time * factor, values, linestyle="none", marker=".", markersize=2,
+        shown_t, values = envelope(time, values, columns, spread=POINT_SPREAD)
+        axis.plot(shown_t * factor, values, linestyle="none", marker=".", markersize=2,
                   color=SHADES[i % len(SHADES)])
         axis.set_ylabel("V", fontsize=8)
         axis.set_title(f"{label}: measured minus predicted", fontsize=9, loc="left")
@@ -192,11 +210,14 @@ def ringdown_figure(path: Path, estimate: RingdownEstimate, time: np.ndarray,
     peaks = excluded is None
     dense = np.linspace(min(0.0, float(np.min(time))), span, 2000)
     if not peaks:  # a peak table's readings are drawn below as the extrema
-        top.plot(time * factor, voltage, color="#9a9a9a", linewidth=1.4, label="measured")
+        columns, limits = columns_of(fig), (float(dense[0]), span)
+        shown_t, shown_v = envelope(time, voltage, columns, limits)
+        top.plot(shown_t * factor, shown_v, color="#9a9a9a", linewidth=1.4, label="measured")
         if excluded.any():
+            clipped_t, clipped_v = envelope(time[excluded], voltage[excluded], columns, limits)
             top.plot(
-                time[excluded] * factor,
-                voltage[excluded],
+                clipped_t * factor,
+                clipped_v,
                 linestyle="none",
                 marker="x",
                 markersize=3,
@@ -310,11 +331,12 @@ def prediction_figure(path: Path, prediction: Prediction, title: str) -> Path:
     figure, axes = plt.subplots(rows, 1, figsize=(8, 5.5 if rows == 2 else 4), sharex=True,
                                 squeeze=False, height_ratios=[3, 1.4][:rows])
     top = axes[0][0]
-    top.plot(spice.time, spice.probe_voltage, color="black", linestyle="-", linewidth=1.6,
-             label="ngspice (circuit simulation)")
+    columns = columns_of(figure)
+    top.plot(*envelope(spice.time, spice.probe_voltage, columns), color="black", linestyle="-",
+             linewidth=1.6, label="ngspice (circuit simulation)")
     if theory is not None:
-        top.plot(theory.time, theory.probe_voltage, color="0.55", linestyle="--",
-                 linewidth=1.4, label="closed-form theory")
+        top.plot(*envelope(theory.time, theory.probe_voltage, columns), color="0.55",
+                 linestyle="--", linewidth=1.4, label="closed-form theory")
     unit = getattr(prediction, "unit", "V")
     top.set_ylabel("probe current (A)" if unit == "A" else "probe voltage (V)")
     top.set_title(title, fontsize=10)
@@ -322,8 +344,8 @@ def prediction_figure(path: Path, prediction: Prediction, title: str) -> Path:
     top.yaxis.set_major_formatter(EngFormatter(unit="V"))
     if theory is not None:
         bottom = axes[1][0]
-        bottom.plot(spice.time, theory.probe_voltage - spice.probe_voltage, color="black",
-                    linestyle=":", linewidth=1.2, label="theory minus ngspice")
+        bottom.plot(*envelope(spice.time, theory.probe_voltage - spice.probe_voltage, columns),
+                    color="black", linestyle=":", linewidth=1.2, label="theory minus ngspice")
         bottom.set_ylabel(f"difference ({unit})")
         bottom.yaxis.set_major_formatter(EngFormatter(unit="V"))
         bottom.legend(loc="best", frameon=False)

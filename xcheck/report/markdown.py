@@ -259,8 +259,19 @@ def _write_figures(comparison: Comparison, folder: Path) -> None:
     obs = comparison.observation
     usable = [o for o in comparison.outcomes if not o.failed and o.theory_curve is not None]
     curves = [(_figure_text(f"{o.name} (rank {o.ranked.rank})"), o.theory_curve) for o in usable]
+    samples = None
+    if not obs.discrete and obs.time.size:
+        # Every sample of the fit window (the fit saw an evenly decimated subset, which
+        # can step over a spike); the figure thins them to each pixel column's extremes.
+        m = comparison.measured
+        window = slice(int(np.searchsorted(m.time, obs.time[0], side="left")),
+                       int(np.searchsorted(m.time, obs.time[-1], side="right")))
+        samples = (m.time[window], m.voltage[window])
+        if m.excluded[window].any():  # clipped samples stay out, as in the fit
+            kept = ~m.excluded[window]
+            samples = (samples[0][kept], samples[1][kept])
     overlay_figure(folder / "overlay.png", obs.time, obs.voltage, curves,
-                   _figure_text(comparison.fixture.title), peaks=obs.discrete)
+                   _figure_text(comparison.fixture.title), peaks=obs.discrete, samples=samples)
     residuals = [(_figure_text(o.name), obs.voltage - o.theory_curve) for o in usable]
     sigma = float(np.median(np.broadcast_to(np.asarray(obs.sigma, float), obs.voltage.shape)))
     residual_figure(folder / "residuals.png", obs.time, residuals, sigma)
