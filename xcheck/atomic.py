@@ -16,17 +16,36 @@ Three rules, one module:
   test (:func:`png_is_ours`, :func:`deck_is_ours`, :func:`csv_is_ours`,
   :func:`json_is_ours`, :func:`report_folder_is_ours`) says an earlier xcheck run wrote
   it; otherwise one error names the path and the option that chose it, and nothing is
-  written (:func:`refuse_foreign`, :func:`refuse_foreign_folder`).
+  written (:func:`refuse_foreign`, :func:`refuse_foreign_folder`). ``--force`` lifts
+  that rule for the one path it names (:func:`replacing_anyway`); the write is still a
+  temporary sibling swapped in whole.
+
+Temporary siblings are named ``.<name>.<8 hex digits>.tmp`` (a file or folder being
+written) and ``.<name>.<8 hex digits>.old`` (the folder being replaced). While a run
+uses one it holds an exclusive ``flock`` on it, which the kernel drops when the process
+ends however it ends; the next write of the same path removes every such sibling no
+process holds (:func:`remove_stray_temporaries`), so a run killed half-way leaves
+nothing behind for long. Where ``fcntl`` is missing (Windows) nothing is removed.
+:func:`check_output_folder` makes a command's checks of its ``--out`` folder before any
+work starts: a file there, a parent that cannot be written, a folder that holds an input.
 """
 
 from __future__ import annotations
 
+import contextlib
 import json
 import os
+import re
 import secrets
 import shutil
-from collections.abc import Callable, Iterable
+from collections.abc import Callable, Iterable, Iterator
+from contextvars import ContextVar
 from pathlib import Path
+
+try:
+    import fcntl
+except ImportError:  # Windows: strays are kept, never removed
+    fcntl = None  # type: ignore[assignment]
 
 from xcheck import __version__
 from xcheck.engines.deck import GENERATED_MARK, is_xcheck_deck
@@ -44,6 +63,10 @@ REPORT_HINT = "it is not an earlier xcheck report: no xcheck summary.json in it"
 
 _HEAD_CHARS = 4096
 _ATTEMPTS = 100
+
+#: Paths whose refusal ``--force`` lifted (:func:`replacing_anyway`), as absolute text.
+_REPLACE_ANYWAY: ContextVar[frozenset[str]] = ContextVar("xcheck_replace_anyway",
+                                                         default=frozenset())
 
 # --------------------------------------------------------------------------------------
 # "Is ours" tests
@@ -120,12 +143,49 @@ def _foreign(path: Path, kind: str, option: str, hint: str) -> XcheckError:
     why = f" ({hint})" if hint else ""
     return XcheckError(
         f"{path}: this {kind} exists and was not written by xcheck{why}, so it was left as "
-        f"it was and nothing was written; choose another {option}, or move it away first"
+        f"it was and nothing was written; choose another {option}, move it away first, or "
+        f"give --force to replace it"
     )
 
 
+def _key(path: Path) -> str:
+    return os.path.normcase(os.path.abspath(path))
+
+
+def _forced(path: Path) -> bool:
+    return _key(path) in _REPLACE_ANYWAY.get()
+
+
+@contextlib.contextmanager
+def replacing_anyway(path: Path, force: bool = True) -> Iterator[None]:
+    """Within the block, ``path`` is replaced even when no "is ours" test accepts it.
+
+    This is ``--force``: every refusal of this module skips its "is ours" test for
+    ``path`` (and only for it), so a report module's own write, which names no option,
+    replaces the foreign file or folder the user chose to overwrite. A file where a folder
+    goes (or the reverse) is still refused, and the write is still atomic.
+
+    Parameters
+    ----------
+    path
+        The output the user gave ``--force`` for.
+    force
+        False makes the block change nothing (so a command can write
+        ``with replacing_anyway(out, args.force):``).
+    """
+    if not force:
+        yield
+        return
+    token = _REPLACE_ANYWAY.set(_REPLACE_ANYWAY.get() | {_key(path)})
+    try:
+        yield
+    finally:
+        _REPLACE_ANYWAY.reset(token)
+
+
 def refuse_foreign(
-    path: Path, is_ours: Callable[[Path], bool], option: str = "--out", *, hint: str = ""
+    path: Path, is_ours: Callable[[Path], bool], option: str = "--out", *, hint: str = "",
+    force: bool = False,
 ) -> None:
     """Raise unless ``path`` is free to write: missing, or a file an earlier run wrote.
 
@@ -139,6 +199,9 @@ def refuse_foreign(
         The command-line option that chose ``path``, for the message.
     hint
         What ``is_ours`` looks for, shown in the message (optional).
+    force
+        Accept an existing file ``is_ours`` does not recognise (``--force``; also when
+        ``path`` is inside :func:`replacing_anyway`).
 
     Raises
     ------
@@ -150,7 +213,7 @@ def refuse_foreign(
             f"{path}: is a folder; nothing was written. Give {option} a file name, not a "
             "folder"
         )
-    if path.exists() and not is_ours(path):
+    if path.exists() and not (force or _forced(path)) and not is_ours(path):
         raise _foreign(path, "file", option, hint)
 
 
@@ -164,7 +227,8 @@ def require_folder(path: Path, option: str = "--out") -> None:
 
 
 def refuse_foreign_folder(
-    path: Path, is_ours: Callable[[Path], bool], option: str = "--out", *, hint: str = ""
+    path: Path, is_ours: Callable[[Path], bool], option: str = "--out", *, hint: str = "",
+    force: bool = False,
 ) -> None:
     """Raise unless ``path`` is free to replace: missing, empty, or an earlier output.
 
@@ -178,6 +242,9 @@ def refuse_foreign_folder(
         The command-line option that chose ``path``, for the message.
     hint
         What ``is_ours`` looks for, shown in the message (optional).
+    force
+        Accept a folder ``is_ours`` does not recognise (``--force``; also when ``path``
+        is inside :func:`replacing_anyway`).
 
     Raises
     ------
@@ -185,8 +252,119 @@ def refuse_foreign_folder(
         When ``path`` is a file, or a non-empty folder ``is_ours`` does not recognise.
     """
     require_folder(path, option)
+    if force or _forced(path):
+        return
     if path.is_dir() and any(path.iterdir()) and not is_ours(path):
         raise _foreign(path, "folder", option, hint)
+
+
+def _nearest_existing(path: Path) -> Path:
+    """``path`` or the closest folder above it that exists (absolute)."""
+    current = Path(os.path.abspath(path))
+    while not os.path.lexists(current) and current != current.parent:
+        current = current.parent
+    return current
+
+
+def _contains(folder: Path, other: Path) -> bool:
+    """True when ``other`` is ``folder`` or lies inside it (symbolic links resolved)."""
+    try:
+        Path(other).resolve().relative_to(Path(folder).resolve())
+    except ValueError:
+        return False
+    return True
+
+
+def require_writable(path: Path, option: str = "--out") -> None:
+    """Raise unless ``path`` can be made or replaced: the nearest folder that exists
+    above it is a folder this user may write to.
+
+    Parameters
+    ----------
+    path
+        The file or folder about to be written (missing folders above it are made).
+    option
+        The command-line option that chose ``path``, for the message.
+
+    Raises
+    ------
+    XcheckError
+        When a path above ``path`` is a file, or the nearest existing folder above it is
+        read-only for this user (``os.access``; a read-only file system counts too).
+    """
+    path = Path(path)
+    above = _nearest_existing(path.parent)
+    if not above.is_dir():
+        raise XcheckError(
+            f"{path}: {above} is a file, so nothing can be made below it; nothing was "
+            f"written. Give {option} a path whose parents are folders"
+        )
+    if not os.access(above, os.W_OK | os.X_OK):
+        raise XcheckError(
+            f"{path}: the folder {above} cannot be written by this user (read-only), so "
+            f"nothing can be made there; nothing was written. Choose another {option} in a "
+            "folder you can write to, or change that folder's permissions"
+        )
+
+
+def check_output_folder(
+    path: Path,
+    is_ours: Callable[[Path], bool],
+    option: str = "--out",
+    *,
+    hint: str = "",
+    force: bool = False,
+    inputs: Iterable[Path | str | None] = (),
+) -> None:
+    """A command's checks of its output folder, made before any work starts.
+
+    Parameters
+    ----------
+    path
+        The folder the command will write (replacing it whole).
+    is_ours
+        Recognises a folder an earlier xcheck run wrote.
+    option, hint
+        For the messages: the option that chose ``path``; what ``is_ours`` looks for.
+    force
+        ``--force``: replace a folder ``is_ours`` does not recognise.
+    inputs
+        The run's input files and folders (None entries are skipped): a folder that holds
+        one is never replaced, since replacing it would delete the input.
+
+    Raises
+    ------
+    XcheckError
+        When ``path`` is a file; a path above it is a file; the nearest folder that exists
+        above it cannot be written by this user; it holds an input, the current folder or
+        the home folder; or it is a foreign folder and ``force`` is false. One paragraph
+        each, nothing written.
+    """
+    path = Path(path)
+    require_folder(path, option)
+    require_writable(path, option)
+    if os.path.lexists(path):
+        for name, other in _kept(inputs):
+            if _contains(path, other):
+                raise XcheckError(
+                    f"{path}: this folder holds {name}, and writing the report replaces "
+                    "the whole folder, which would delete it; nothing was written. Choose "
+                    f"another {option}, e.g. a new folder beside it"
+                )
+    refuse_foreign_folder(path, is_ours, option, hint=hint, force=force)
+
+
+def _kept(inputs: Iterable[Path | str | None]) -> Iterator[tuple[str, Path]]:
+    """What an output folder must never hold: the inputs, the current and home folders
+    (a file system's root holds the current folder)."""
+    for item in inputs:
+        if item is not None:
+            yield f"the input {item}", Path(item)
+    yield "the current folder", Path.cwd()
+    try:
+        yield "your home folder", Path.home()
+    except (RuntimeError, KeyError):  # no HOME and no password entry
+        return
 
 
 # --------------------------------------------------------------------------------------
@@ -211,6 +389,82 @@ def _sibling(path: Path, tag: str, create: Callable[[Path], None]) -> Path:
             continue
         return candidate
     raise FileExistsError(f"no free temporary name next to {path}")
+
+
+def _stray_pattern(name: str) -> re.Pattern[str]:
+    return re.compile(r"\." + re.escape(name) + r"\.[0-9a-f]{8}\.(tmp|old)")
+
+
+def _hold(path: Path) -> int | None:
+    """Open ``path`` (never through a symbolic link) and take an exclusive ``flock`` on
+    it without waiting; the descriptor, or None when another process holds it, it cannot
+    be opened, or locks are not available."""
+    if fcntl is None:
+        return None
+    try:
+        descriptor = os.open(path, os.O_RDONLY | getattr(os, "O_NOFOLLOW", 0))
+    except OSError:
+        return None
+    try:
+        fcntl.flock(descriptor, fcntl.LOCK_EX | fcntl.LOCK_NB)
+    except OSError:
+        os.close(descriptor)
+        return None
+    return descriptor
+
+
+def _release(descriptor: int | None) -> None:
+    if descriptor is not None:
+        os.close(descriptor)  # closing drops the flock
+
+
+def remove_stray_temporaries(path: Path) -> list[Path]:
+    """Remove the temporary siblings of ``path`` that an interrupted run left behind.
+
+    A sibling named as this module names its temporaries (``.<name>.<hex>.tmp`` or
+    ``.old``) is removed when no process holds its lock, i.e. the run that made it has
+    ended. When ``path`` itself is missing and a ``.old`` folder is there (the run stopped
+    between moving the old folder aside and moving the new one in), the first such
+    folder is put back at ``path`` instead of being removed.
+
+    Parameters
+    ----------
+    path
+        The file or folder about to be written.
+
+    Returns
+    -------
+    list of Path
+        The siblings removed or put back.
+    """
+    path = Path(path)
+    pattern = _stray_pattern(path.name)
+    try:
+        entries = sorted(os.scandir(path.parent), key=lambda entry: entry.name)
+    except OSError:
+        return []
+    handled = []
+    for entry in entries:
+        match = pattern.fullmatch(entry.name)
+        if match is None or entry.is_symlink():
+            continue
+        stray = Path(entry.path)
+        descriptor = _hold(stray)
+        if descriptor is None:
+            continue  # in use by a run still going (or not ours to judge)
+        try:
+            if match.group(1) == "old" and entry.is_dir() and not os.path.lexists(path):
+                os.replace(stray, path)
+            elif entry.is_dir(follow_symlinks=False):
+                shutil.rmtree(stray, ignore_errors=True)
+            else:
+                stray.unlink(missing_ok=True)
+        except OSError:
+            continue
+        finally:
+            _release(descriptor)
+        handled.append(stray)
+    return handled
 
 
 def _new_file(path: Path) -> None:
@@ -260,9 +514,12 @@ def write_file_atomically(
     if is_ours is not None:
         refuse_foreign(path, is_ours, option, hint=hint)
     temporary: Path | None = None
+    lock: int | None = None
     try:
         path.parent.mkdir(parents=True, exist_ok=True)
+        remove_stray_temporaries(path)
         temporary = _sibling(path, ".tmp", _new_file)
+        lock = _hold(temporary)
         writer(temporary)
         _fsync(temporary)
         os.replace(temporary, path)
@@ -270,6 +527,7 @@ def write_file_atomically(
     except OSError as exc:
         raise _cannot_write(path, option, exc) from exc
     finally:
+        _release(lock)
         if temporary is not None:
             temporary.unlink(missing_ok=True)
 
@@ -323,9 +581,13 @@ def write_folder_atomically(
     refuse_foreign_folder(folder, is_ours, option, hint=hint)
     try:
         folder.parent.mkdir(parents=True, exist_ok=True)
+        remove_stray_temporaries(folder)
+        # The strays' check ran before an old folder was put back: check again.
+        refuse_foreign_folder(folder, is_ours, option, hint=hint)
         staging = _sibling(folder, ".tmp", _new_folder)
     except OSError as exc:
         raise _cannot_write(folder, option, exc) from exc
+    lock = _hold(staging)
     try:
         writer(staging)
         _swap_in(staging, folder)
@@ -335,20 +597,27 @@ def write_folder_atomically(
     except BaseException:
         shutil.rmtree(staging, ignore_errors=True)
         raise
+    finally:
+        _release(lock)
     return folder
 
 
 def _swap_in(staging: Path, folder: Path) -> None:
     """Rename ``staging`` to ``folder``; an existing ``folder`` is moved aside first and
-    removed after, or put back when the second rename fails."""
+    removed after, or put back when the second rename fails. The folder moved aside is
+    locked (it becomes the ``.old`` sibling), so no other run takes it for a stray."""
     if not folder.exists():
         os.replace(staging, folder)
         return
     old = _sibling(folder, ".old", _new_folder)
-    os.replace(folder, old)  # onto the empty folder just made: atomic on POSIX
+    lock = _hold(folder)
     try:
-        os.replace(staging, folder)
-    except BaseException:
-        os.replace(old, folder)
-        raise
-    shutil.rmtree(old, ignore_errors=True)
+        os.replace(folder, old)  # onto the empty folder just made: atomic on POSIX
+        try:
+            os.replace(staging, folder)
+        except BaseException:
+            os.replace(old, folder)
+            raise
+        shutil.rmtree(old, ignore_errors=True)
+    finally:
+        _release(lock)

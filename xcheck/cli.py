@@ -4,7 +4,9 @@ Each subcommand lives in :mod:`xcheck.commands` as a module with ``add_arguments
 and ``run(args) -> int``. This module only dispatches and turns every
 :class:`~xcheck.errors.XcheckError` into one paragraph on stderr with exit status 2.
 
-Exit status: 0 done; 1 a comparison missed its threshold; 2 bad input or environment.
+Exit status: 0 done; 1 a comparison missed its threshold; 2 bad input or environment;
+130 interrupted (Ctrl-C, SIGINT: 128 + the signal's number, as shells report it), after a
+one-line message and with no traceback.
 """
 
 from __future__ import annotations
@@ -29,11 +31,13 @@ COMMANDS: dict[str, tuple[str, str]] = {
               "and write an index"),
     "sweep": ("sweep", "Monte Carlo over the tolerances: the spread of the waveform, f_d and "
               "alpha, sensitivities, and which tolerance explains the measurement"),
+    "doctor": ("doctor", "show what is installed (Python, libraries, ngspice) and what is missing"),
 }
 
 EXIT_OK = 0
 EXIT_THRESHOLD = 1
 EXIT_BAD_INPUT = 2
+EXIT_INTERRUPTED = 130
 
 
 class _Parser(argparse.ArgumentParser):
@@ -93,6 +97,28 @@ def _paragraph(message: str) -> str:
 
 def main(argv: Sequence[str] | None = None) -> int:
     """Run xcheck with ``argv`` (default: the process arguments); return the exit status."""
+    try:
+        return _dispatch(argv)
+    except KeyboardInterrupt:  # also while the chosen command's libraries are imported
+        _stop_ngspice_child()
+        sys.stderr.write("xcheck: interrupted; nothing further was written.\n")
+        return EXIT_INTERRUPTED
+
+
+def _stop_ngspice_child() -> None:
+    """Kill ngspice's child process at once when one was started, so that it cannot
+    print after the message (a child still loading the library would otherwise report
+    the parent's closed pipe when it is done)."""
+    engine = sys.modules.get("xcheck.engines.ngspice")
+    worker = getattr(engine, "_shared_worker", None)
+    if worker is not None:
+        try:
+            worker.stop(force=True)
+        except Exception:  # noqa: BLE001 - stopping is a courtesy; the message matters
+            pass
+
+
+def _dispatch(argv: Sequence[str] | None) -> int:
     argv = list(sys.argv[1:] if argv is None else argv)
     parser = build_parser(argv)
     try:
@@ -106,9 +132,6 @@ def main(argv: Sequence[str] | None = None) -> int:
         return int(args._run(args))
     except XcheckError as exc:
         sys.stderr.write("xcheck: " + _paragraph(str(exc)))
-        return EXIT_BAD_INPUT
-    except KeyboardInterrupt:
-        sys.stderr.write("xcheck: interrupted; nothing further was written.\n")
         return EXIT_BAD_INPUT
 
 

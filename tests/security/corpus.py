@@ -2,7 +2,8 @@
 
 :data:`CORPUS` holds every case (:class:`corpus_case.Case`): fixture files for
 ``xcheck deck`` (tests/security/corpus_fixtures.py) and traces and peak tables for
-``xcheck ringdown`` and ``xcheck compare`` (tests/security/corpus_traces.py). Each names
+``xcheck ringdown`` and ``xcheck compare`` (tests/security/corpus_traces.py), and what
+may stand at ``compare --out`` (tests/security/corpus_outputs.py). Each names
 its category, the file's bytes and the exit status expected; tests/security/corpus_run.py
 runs one, tests/security/test_corpus.py runs them all and
 tests/security/corpus_table.py prints the README's table of them.
@@ -12,12 +13,13 @@ from __future__ import annotations
 
 from security.corpus_case import Case
 from security.corpus_fixtures import LOOP_BASE, fixture_cases
+from security.corpus_outputs import output_cases
 from security.corpus_traces import trace_cases
 
 __all__ = ["CORPUS", "LOOP_BASE", "Case", "categories"]
 
-#: Every case, fixtures first.
-CORPUS: tuple[Case, ...] = tuple(fixture_cases() + trace_cases())
+#: Every case, fixtures first, output paths last.
+CORPUS: tuple[Case, ...] = tuple(fixture_cases() + trace_cases() + output_cases())
 
 _names = [case.name for case in CORPUS]
 if len(set(_names)) != len(_names):

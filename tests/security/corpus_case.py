@@ -19,6 +19,13 @@ COMMANDS = ("deck", "ringdown", "peaks", "compare")
 #: a path that does not exist, a symbolic link to ``/dev/zero``.
 SPECIALS = ("folder", "fifo", "dev_zero", "missing", "link_to_dev_zero")
 
+#: What stands at ``compare --out`` before the run (tests/security/corpus_outputs.py): a
+#: file; a file where a folder above it goes; a folder xcheck did not write, without and
+#: with ``--force``; ``--force`` at the folder holding the inputs; an earlier report with
+#: the temporary siblings a killed run left.
+OUTPUTS = ("file", "under_file", "foreign_folder", "foreign_folder_forced",
+           "holds_input_forced", "strays")
+
 
 @dataclass(frozen=True)
 class Case:
@@ -45,6 +52,9 @@ class Case:
         The input file's name ending (``.toml``, ``.csv``, ``.csv.gz``).
     process
         Run in a child process with a memory limit (a gzip bomb) rather than in-process.
+    output
+        One of :data:`OUTPUTS` (``compare`` only): the case is about ``--out``, not the
+        input, and the message must name the output path instead.
     """
 
     category: str
@@ -56,12 +66,16 @@ class Case:
     words: tuple[str, ...] = ()
     suffix: str = ""
     process: bool = False
+    output: str | None = None
 
     def __post_init__(self) -> None:
         if self.command not in COMMANDS:
             raise ValueError(f"unknown command {self.command!r}")
         if self.special is not None and self.special not in SPECIALS:
             raise ValueError(f"unknown special input {self.special!r}")
+        if self.output is not None and (self.output not in OUTPUTS
+                                        or self.command != "compare"):
+            raise ValueError(f"unknown output case {self.output!r} (compare only)")
 
     @property
     def file_name(self) -> str:

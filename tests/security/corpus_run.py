@@ -12,6 +12,10 @@ output path would land there and be seen. A case is judged on:
   tests/security/deck_checks.py;
 - **input modified**: the input's bytes changed, or a file appeared outside ``out/``.
 
+An output case (``Case.output``) sets up what stands at ``compare --out`` first
+(:func:`make_output`); its message must name that path, and a run that succeeds must
+leave no temporary sibling of the report folder.
+
 Cases run in-process with stdout and stderr captured (fast), under an alarm so that a
 read that blocks fails the case instead of hanging; a case that needs a real process
 (a memory limit) runs in a child Python with an address-space limit (``resource``,
@@ -97,6 +101,31 @@ def make_input(case: Case, folder: Path) -> Path:
     return path
 
 
+#: The report folder a ``compare`` case writes, inside ``out/``.
+REPORT = "report"
+
+
+def make_output(case: Case, folder: Path) -> tuple[Path, list[str]]:
+    """Set up what stands at ``compare --out`` for ``case``; (the path, extra options)."""
+    out = folder / "out"
+    report = out / REPORT
+    if case.output in ("file", "under_file"):
+        blocker = out / "taken"
+        blocker.write_text("a file of the user's\n", encoding="utf-8")
+        return (blocker if case.output == "file" else blocker / REPORT), []
+    if case.output in ("foreign_folder", "foreign_folder_forced"):
+        report.mkdir()
+        (report / "notes.txt").write_text("the user's notes\n", encoding="utf-8")
+        return report, ["--force"] if case.output == "foreign_folder_forced" else []
+    if case.output == "holds_input_forced":
+        return folder / "in", ["--force"]
+    if case.output == "strays":  # as a run killed while writing leaves them
+        (out / f".{REPORT}.0badc0de.tmp").mkdir()
+        (out / f".{REPORT}.0badc0de.tmp" / "report.md").write_text("half", encoding="utf-8")
+        (out / f".{REPORT}.00c0ffee.tmp").write_text("half a file", encoding="utf-8")
+    return report, []
+
+
 def arguments(case: Case, source: Path, folder: Path) -> list[str]:
     """The command line of ``case`` reading ``source`` and writing into ``folder/out``."""
     out = folder / "out"
@@ -107,8 +136,9 @@ def arguments(case: Case, source: Path, folder: Path) -> list[str]:
                 "--json", str(out / "r.json")]
     if case.command == "peaks":
         return ["ringdown", str(source), "--peaks", "--out", str(out / "r.png")]
+    report, extra = make_output(case, folder)
     return ["compare", str(folder / "in" / FIXTURE_NAME), "--trace", str(source),
-            "--out", str(out / "report"), "--no-ngspice", "--quiet"]
+            "--out", str(report), "--no-ngspice", "--quiet", *extra]
 
 
 def _snapshot(folder: Path) -> dict[str, bytes | None]:
@@ -243,12 +273,16 @@ def run_case(case: Case, folder: Path, fixture_text: str) -> Outcome:
         outcome.problems.append("the input changed or a file appeared outside out/")
     if code != case.expect:
         outcome.problems.append(f"exit status {code}, expected {case.expect}")
+    named = Path(argv[argv.index("--out") + 1]).name if case.output else source.name
     if code == 2:
-        paragraph = one_paragraph_problems(stderr, source.name, case.words)
+        paragraph = one_paragraph_problems(stderr, named, case.words)
         outcome.clear = not paragraph and not outcome.crashed
         outcome.problems += paragraph
     if code in (0, 1) and stderr.strip():
         outcome.problems.append(f"a run that succeeded printed on stderr: {stderr[:200]!r}")
+    if case.command == "compare" and code == 0 and any(
+            p.name.startswith(f".{REPORT}.") for p in (folder / "out").iterdir()):
+        outcome.problems.append("a temporary sibling of the report folder remained")
     if case.command == "deck" and code == 0:
         found = deck_problems(folder / "out" / "deck.cir", source, case.data)
         outcome.injected = bool(found)

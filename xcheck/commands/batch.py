@@ -35,6 +35,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                              "loop.extra_resistance (the default)")
     parser.add_argument("--no-ngspice", action="store_true",
                         help="skip the ngspice evaluation (closed form only)")
+    parser.add_argument("--force", action="store_true",
+                        help="replace the --out folder even when it is not an earlier batch "
+                             "output (still written whole, then swapped in)")
 
 
 @contextlib.contextmanager
@@ -56,7 +59,7 @@ def progress_bar(enabled: bool) -> Iterator[Callable[[int, int], None] | None]:
 
 def run(args: argparse.Namespace) -> int:
     """Run the batch, write its folder, print one line per fixture and the index's path."""
-    from xcheck.atomic import refuse_foreign_folder
+    from xcheck.atomic import check_output_folder, replacing_anyway
     from xcheck.report.batch_index import BATCH_HINT, ERROR, FAIL, batch_folder_is_ours
     from xcheck.sweep.batch import find_jobs, run_batch, write_batch
     from xcheck.values import format_eng
@@ -67,13 +70,15 @@ def run(args: argparse.Namespace) -> int:
     folder = Path(args.folder)
     find_jobs(folder)  # a bad folder fails here, before any worker starts
     out = Path(args.out) if args.out else Path("reports") / f"batch-{folder.resolve().name}"
-    refuse_foreign_folder(out, batch_folder_is_ours, "--out folder", hint=BATCH_HINT)
+    check_output_folder(out, batch_folder_is_ours, "--out folder", hint=BATCH_HINT,
+                        force=args.force, inputs=(folder,))
     with progress_bar(sys.stderr.isatty()) as progress:
         entries = run_batch(folder, workers=args.workers, cluster=args.cluster,
                             use_ngspice=not args.no_ngspice, value_label=args.value,
                             progress=progress)
-    written = write_batch(entries, out, folder=folder, value_label=args.value,
-                          max_nrmse=args.max_nrmse)
+    with replacing_anyway(out, args.force):
+        written = write_batch(entries, out, folder=folder, value_label=args.value,
+                              max_nrmse=args.max_nrmse)
     bad = 0
     for entry in entries:
         status = entry.status(args.max_nrmse)

@@ -31,6 +31,23 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--keep-all", action="store_true",
                         help="keep peak-table readings flagged as off the envelope (left out by default)")
     parser.add_argument("--quiet", action="store_true", help="no progress lines")
+    add_force_argument(parser)
+
+
+def add_force_argument(parser: argparse.ArgumentParser) -> None:
+    """Register ``--force`` (shared by the commands that write a report folder)."""
+    parser.add_argument("--force", action="store_true",
+                        help="replace the --out folder even when it is not an earlier xcheck "
+                             "report (still written whole, then swapped in)")
+
+
+def check_report_folder(out: Path, force: bool, inputs=()) -> None:
+    """Check ``--out`` before the work starts (:func:`xcheck.atomic.check_output_folder`)."""
+    from xcheck.atomic import REPORT_HINT, check_output_folder, report_folder_is_ours
+    from xcheck.report.summary import SCHEMA
+
+    check_output_folder(out, lambda path: report_folder_is_ours(path, SCHEMA), "--out",
+                        hint=REPORT_HINT, force=force, inputs=inputs)
 
 
 def _column(text: str | None) -> str | int | None:
@@ -51,10 +68,15 @@ def progress_printer(quiet: bool):
     return say
 
 
-def finish(comparison: Comparison, out: Path, max_nrmse: float | None, say) -> int:
-    """Write the report, print the verdict and where it went; return the exit status."""
+def finish(comparison: Comparison, out: Path, max_nrmse: float | None, say,
+           force: bool = False) -> int:
+    """Write the report, print the verdict and where it went; return the exit status.
+    ``force``: replace ``out`` even when it is not an earlier report (``--force``)."""
+    from xcheck.atomic import replacing_anyway
+
     say("writing the report")
-    folder = write_report(comparison, out)
+    with replacing_anyway(out, force):
+        folder = write_report(comparison, out)
     print(comparison.verdict)
     print(f"report: {folder / 'report.md'}")
     best = comparison.best
@@ -70,6 +92,8 @@ def run(args: argparse.Namespace) -> int:
     """Run the comparison and write the report."""
     say = progress_printer(args.quiet)
     fixture = load_fixture(args.fixture)
+    out = Path(args.out) if args.out else Path("reports") / fixture.name
+    check_report_folder(out, args.force, (args.fixture, args.trace, args.peaks))
     event_time = None
     if args.event_time is not None:
         try:
@@ -86,5 +110,4 @@ def run(args: argparse.Namespace) -> int:
         progress=say,
         keep_all=args.keep_all,
     )
-    out = Path(args.out) if args.out else Path("reports") / fixture.name
-    return finish(comparison, out, args.max_nrmse, say)
+    return finish(comparison, out, args.max_nrmse, say, args.force)

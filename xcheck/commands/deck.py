@@ -14,7 +14,8 @@ import argparse
 import sys
 from pathlib import Path
 
-from xcheck.atomic import DECK_HINT, deck_is_ours, write_text_atomically
+from xcheck.atomic import (DECK_HINT, deck_is_ours, replacing_anyway, require_writable,
+                           write_text_atomically)
 from xcheck.circuit.expand import build_circuit
 from xcheck.engines.deck import write_deck
 from xcheck.fixture.plausibility import implausible_values
@@ -36,6 +37,12 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         default=None,
         help="deck file to write (default: netlists/<fixture name>.cir)",
     )
+    parser.add_argument(
+        "--force",
+        action="store_true",
+        help="replace the --out file even when it is not a deck xcheck wrote (still written "
+        "whole, then renamed into place)",
+    )
 
 
 def default_path(fixture_path: Path) -> Path:
@@ -49,7 +56,9 @@ def run(args: argparse.Namespace) -> int:
     circuit = build_circuit(fixture, parameters_from_fixture(fixture))
     text = write_deck(circuit, source_name=Path(args.fixture).as_posix())
     out = Path(args.out) if args.out is not None else default_path(Path(args.fixture))
-    write_text_atomically(out, text, is_ours=deck_is_ours, option="--out", hint=DECK_HINT)
+    require_writable(out, "--out")
+    with replacing_anyway(out, args.force):
+        write_text_atomically(out, text, is_ours=deck_is_ours, option="--out", hint=DECK_HINT)
     tran = text.splitlines()[-2].split()
     sys.stdout.write(
         f"wrote {out}: {len(circuit.elements)} elements, "

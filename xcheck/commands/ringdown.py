@@ -86,6 +86,12 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         help="also write the numbers to FILE (JSON, SI units)",
     )
     parser.add_argument(
+        "--force",
+        action="store_true",
+        help="replace the --out and --json files even when xcheck did not write them "
+        "(each still written whole, then renamed into place)",
+    )
+    parser.add_argument(
         "--out",
         type=Path,
         metavar="PNG",
@@ -181,9 +187,9 @@ def run(args: argparse.Namespace) -> int:
             inductance_stderr=l_err,
         )
     png = args.out or DEFAULT_ROOT / args.trace.name.split(".")[0] / "ringdown" / PNG_NAME
-    refuse_foreign(png, png_is_ours, "--out")
+    refuse_foreign(png, png_is_ours, "--out", force=args.force)
     if args.json is not None:
-        refuse_foreign(args.json, _json_is_ours, "--json")
+        refuse_foreign(args.json, _json_is_ours, "--json", force=args.force)
     figure = aperiodic_figure if estimate.aperiodic else ringdown_figure
     write_file_atomically(
         png,

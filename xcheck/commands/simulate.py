@@ -29,7 +29,9 @@ from xcheck.atomic import (
     csv_is_ours,
     png_is_ours,
     refuse_foreign,
+    replacing_anyway,
     require_folder,
+    require_writable,
     write_file_atomically,
 )
 from xcheck.engines.predict import CSV_HEADER_START, Prediction, predict_fixture, write_csv
@@ -55,6 +57,12 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         help="folder for prediction.csv and overlay.png "
         "(default: reports/<fixture name>/simulate/)",
     )
+    parser.add_argument(
+        "--force",
+        action="store_true",
+        help="replace prediction.csv and overlay.png in the --out folder even when xcheck "
+        "did not write them (each still written whole, then renamed into place)",
+    )
 
 
 def default_folder(fixture_path: Path) -> Path:
@@ -66,17 +74,19 @@ def run(args: argparse.Namespace) -> int:
     """Simulate, write the CSV and PNG, print the summary; return 0."""
     fixture_path = Path(args.fixture)
     fixture = load_fixture(fixture_path)
-    prediction = predict_fixture(fixture)
     folder = Path(args.out) if args.out is not None else default_folder(fixture_path)
-    require_folder(folder, "--out")
     csv_path = folder / CSV_NAME
     png_path = folder / PNG_NAME
-    refuse_foreign(csv_path, _csv_is_ours, "--out folder")  # both checked before
-    refuse_foreign(png_path, png_is_ours, "--out folder")  # either is written
-    write_file_atomically(csv_path, lambda tmp: write_csv(tmp, prediction))
-    write_file_atomically(
-        png_path, lambda tmp: prediction_figure(tmp, prediction, prediction.title)
-    )
+    require_folder(folder, "--out")  # all checked before the simulation runs
+    require_writable(csv_path, "--out")
+    refuse_foreign(csv_path, _csv_is_ours, "--out folder", force=args.force)
+    refuse_foreign(png_path, png_is_ours, "--out folder", force=args.force)
+    prediction = predict_fixture(fixture)
+    with replacing_anyway(csv_path, args.force), replacing_anyway(png_path, args.force):
+        write_file_atomically(csv_path, lambda tmp: write_csv(tmp, prediction))
+        write_file_atomically(
+            png_path, lambda tmp: prediction_figure(tmp, prediction, prediction.title)
+        )
     sys.stdout.write(summary_text(fixture, prediction, [csv_path, png_path]))
     return 0
 

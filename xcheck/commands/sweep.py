@@ -39,6 +39,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="significant digits the adaptive procedure asks of the standard "
                              "uncertainties of f_d and alpha (default 2)")
     parser.add_argument("--out", help="report folder (default reports/<fixture name>-sweep/)")
+    parser.add_argument("--force", action="store_true",
+                        help="replace the --out folder even when it is not an earlier sweep "
+                             "(still written whole, then swapped in)")
 
 
 @contextlib.contextmanager
@@ -67,7 +70,7 @@ def _progress(enabled: bool) -> Iterator:
 
 def run(args: argparse.Namespace) -> int:
     """Run the sweep, write its folder, print the explanations and where they went."""
-    from xcheck.atomic import refuse_foreign_folder
+    from xcheck.atomic import check_output_folder, replacing_anyway
     from xcheck.fixture.reader import load_fixture
     from xcheck.report.sweep_report import SWEEP_HINT, sweep_folder_is_ours, write_sweep_report
     from xcheck.sweep.study import run_sweep
@@ -78,13 +81,15 @@ def run(args: argparse.Namespace) -> int:
         raise XcheckError(f"--seed {args.seed}: give a whole number of at least 0")
     fixture = load_fixture(args.fixture)
     out = Path(args.out) if args.out else Path("reports") / f"{fixture.name}-sweep"
-    refuse_foreign_folder(out, sweep_folder_is_ours, "--out folder", hint=SWEEP_HINT)
+    check_output_folder(out, sweep_folder_is_ours, "--out folder", hint=SWEEP_HINT,
+                        force=args.force, inputs=(args.fixture, args.trace, args.peaks))
     with _progress(sys.stderr.isatty()) as (trials, stage):
         result = run_sweep(fixture, trace=args.trace, peaks=args.peaks, runs=args.runs,
                            seed=args.seed, engine=args.engine, workers=args.workers,
                            cluster=args.cluster, digits=args.digits, progress=trials,
                            stage=stage)
-    folder = write_sweep_report(result, out)
+    with replacing_anyway(out, args.force):
+        folder = write_sweep_report(result, out)
     for sweep, found in zip(result.montecarlo.candidates, result.sensitivity):
         inside = sweep.band.inside
         share = f", {100 * inside:.3g} % of the measured samples inside the band" \
