@@ -216,12 +216,16 @@ def run_frequency_comparison(fixture: Fixture, sweep: FrequencySweep, *,
             "and phase were known to the same relative error, and the noise level is "
             "estimated from the residuals")
     outcomes = []
+    bics: dict[str, float] = {}
     for number, candidate in enumerate(candidates, 1):
         if progress is not None:
             progress(f"fitting candidate {number}/{len(candidates)}: {candidate.name}")
         obs = base.with_laws(laws[candidate.name])
         fitted_to = JointObservation.of(timed, obs) if timed is not None else obs
-        fit = fit_candidate(fixture, candidate, fitted_to)
+        skip = _power_law_not_needed(candidate.name, bics)
+        fit = (FitResult(candidate.name, False, skip) if skip
+               else fit_candidate(fixture, candidate, fitted_to))
+        bics[candidate.name] = fit.bic if not fit.failed else math.inf
         outcomes.append(_evaluate(fixture, obs, candidate, laws[candidate.name], fit,
                                   use_ngspice))
     ranking = rank_by_bic([o.name for o in outcomes], [o.fit.bic for o in outcomes],
@@ -229,6 +233,25 @@ def run_frequency_comparison(fixture: Fixture, sweep: FrequencySweep, *,
     return FrequencyComparison(fixture, sweep, tuple(outcomes), tuple(ranking),
                                _resonances(base.frequency, np.asarray(sweep.value, complex)),
                                joint=timed is not None, notes=tuple(notes))
+
+
+#: A fitted power of frequency is tried only where the square-root law already beats the
+#: constant loss by at least this BIC difference ("positive" evidence, Kass & Raftery
+#: 1995): without a loss that grows with frequency the power's exponent is undetermined
+#: and the fit only wanders.
+POWER_LAW_NEEDS = 2.0
+
+
+def _power_law_not_needed(name: str, bics: dict[str, float]) -> str:
+    """Why the power-law rung ``name`` is not fitted ("" when it is)."""
+    if not name.startswith("power-"):
+        return ""
+    skin = bics.get("skin-" + name[len("power-"):], math.inf)
+    lumped = bics.get("lumped", math.inf)
+    if skin < lumped - POWER_LAW_NEEDS:
+        return ""
+    return ("not fitted: the skin-effect rung does not beat the lumped model, so no loss "
+            "grows with frequency for a power of it to describe")
 
 
 def _with_time_unknowns(fixture: Fixture, candidates: list[Candidate]) -> list[Candidate]:

@@ -1,4 +1,6 @@
-"""``xcheck compare FIXTURE (--trace FILE | --peaks FILE) [--out DIR] [--max-nrmse X]``."""
+"""``xcheck compare FIXTURE (--trace FILE | --peaks FILE | --sweep FILE | --lcr FILE)
+[--out DIR] [--max-nrmse X]``; a sweep may come with a trace or peak table (a joint fit,
+:mod:`xcheck.commands.compare_sweep`)."""
 
 from __future__ import annotations
 
@@ -18,9 +20,15 @@ from xcheck.values import parse_value
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     """Register the compare options."""
     parser.add_argument("fixture", help="fixture description (TOML)")
-    source = parser.add_mutually_exclusive_group(required=True)
+    source = parser.add_mutually_exclusive_group()
     source.add_argument("--trace", help="scope export (CSV, optionally .gz)")
     source.add_argument("--peaks", help="table of extrema read off cursors (CSV)")
+    swept = parser.add_mutually_exclusive_group()
+    swept.add_argument("--sweep", help="frequency sweep: CSV (magnitude and phase, or real "
+                                       "and imaginary parts) or Touchstone .s1p/.s2p; the "
+                                       "fixture's [swept] table says what it measured")
+    swept.add_argument("--lcr", help="table of LCR-meter readings (frequency, value, ESR, D, "
+                                     "Q or phase)")
     parser.add_argument("--column", help="channel of the trace: header name or 0-based index")
     parser.add_argument("--event-time", help="event time in the file's time base, e.g. '1.5m'")
     parser.add_argument("--out", help="report folder (default reports/<fixture name>/)")
@@ -93,13 +101,22 @@ def run(args: argparse.Namespace) -> int:
     say = progress_printer(args.quiet)
     fixture = load_fixture(args.fixture)
     out = Path(args.out) if args.out else Path("reports") / fixture.name
-    check_report_folder(out, args.force, (args.fixture, args.trace, args.peaks))
+    if args.trace is None and args.peaks is None and args.sweep is None and args.lcr is None:
+        raise XcheckError("compare needs a measurement: a trace (--trace), a peak table "
+                          "(--peaks), a frequency sweep (--sweep) or LCR-meter readings "
+                          "(--lcr); a sweep may come with a trace or peak table")
+    check_report_folder(out, args.force,
+                        (args.fixture, args.trace, args.peaks, args.sweep, args.lcr))
     event_time = None
     if args.event_time is not None:
         try:
             event_time = parse_value(args.event_time, unit="s")
         except XcheckError as exc:
             raise XcheckError(f"--event-time: {exc}") from None
+    if args.sweep is not None or args.lcr is not None:
+        from xcheck.commands.compare_sweep import run_sweep
+
+        return run_sweep(args, fixture, out, say, event_time, _column(args.column))
     comparison = run_comparison(
         fixture,
         trace=args.trace,
