@@ -14,12 +14,14 @@ from __future__ import annotations
 from security.corpus_case import Case
 from security.corpus_fixtures import LOOP_BASE, fixture_cases
 from security.corpus_outputs import output_cases
+from security.corpus_sweeps import sweep_cases
 from security.corpus_traces import trace_cases
 
 __all__ = ["CORPUS", "LOOP_BASE", "Case", "categories"]
 
 #: Every case, fixtures first, output paths last.
-CORPUS: tuple[Case, ...] = tuple(fixture_cases() + trace_cases() + output_cases())
+CORPUS: tuple[Case, ...] = tuple(fixture_cases() + trace_cases() + output_cases()
+                                 + sweep_cases())
 
 _names = [case.name for case in CORPUS]
 if len(set(_names)) != len(_names):

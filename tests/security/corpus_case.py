@@ -12,8 +12,9 @@ from dataclasses import dataclass
 
 #: The commands a case runs: ``deck`` reads a fixture, ``ringdown`` a trace,
 #: ``peaks`` a peak table (``ringdown --peaks``), ``compare`` a trace against the base
-#: loop fixture (``compare --no-ngspice``).
-COMMANDS = ("deck", "ringdown", "peaks", "compare")
+#: loop fixture (``compare --no-ngspice``), ``sweep`` a frequency sweep against that
+#: fixture with a ``[swept]`` table (``compare --sweep --no-ngspice``).
+COMMANDS = ("deck", "ringdown", "peaks", "compare", "sweep")
 
 #: Special kinds of input: a folder, a FIFO (named pipe), the endless ``/dev/zero``,
 #: a path that does not exist, a symbolic link to ``/dev/zero``.

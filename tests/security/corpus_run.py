@@ -136,6 +136,9 @@ def arguments(case: Case, source: Path, folder: Path) -> list[str]:
                 "--json", str(out / "r.json")]
     if case.command == "peaks":
         return ["ringdown", str(source), "--peaks", "--out", str(out / "r.png")]
+    if case.command == "sweep":
+        return ["compare", str(folder / "in" / FIXTURE_NAME), "--sweep", str(source),
+                "--out", str(out / "report"), "--no-ngspice", "--quiet"]
     report, extra = make_output(case, folder)
     return ["compare", str(folder / "in" / FIXTURE_NAME), "--trace", str(source),
             "--out", str(report), "--no-ngspice", "--quiet", *extra]
@@ -252,6 +255,10 @@ def run_case(case: Case, folder: Path, fixture_text: str) -> Outcome:
     (folder / "out").mkdir()
     if case.command == "compare":
         (inputs / FIXTURE_NAME).write_text(fixture_text, encoding="utf-8")
+    if case.command == "sweep":  # what the sweep measured: C1 on its own
+        (inputs / FIXTURE_NAME).write_text(
+            fixture_text + '\n[swept]\nmeasures = "impedance"\npart = "C1"\n',
+            encoding="utf-8")
     source = make_input(case, inputs)
     argv = arguments(case, source, folder)
     before = _snapshot(folder)
