@@ -221,3 +221,24 @@ def test_the_joint_fit_from_the_command_line(tmp_path: Path) -> None:
     power = next(c for c in data["frequency_sweep"]["candidates"] if c["name"] == "power-C1-esr")
     assert power["failed"] and "skin-effect rung does not beat" in power["failure_reason"]
     assert abs(lumped["fitted"]["L1.dcr"] - dcr) <= 3 * err["L1.dcr"]
+
+
+def test_a_missing_ngspice_skips_the_ac_leg_once_and_says_so(tmp_path: Path, monkeypatch) -> None:
+    # A library path that does not exist: the loader's documented override.
+    from xcheck.engines import ngspice
+
+    monkeypatch.setenv("NGSPICE_LIBRARY_PATH", str(tmp_path / "no-such-libngspice.so"))
+    ngspice.recycle_shared_worker(lambda runs, memory: True)  # the next run starts afresh
+    f = np.geomspace(100.0, 1e6, 30)
+    sweep = FrequencySweep(f, 0.05 + 1 / (1j * 2 * math.pi * f * 100e-6), "impedance", "ohm",
+                           "cap.csv")
+    try:
+        result = run_frequency_comparison(parse_fixture_text(CAPACITOR, "cap.toml"), sweep)
+    finally:
+        monkeypatch.delenv("NGSPICE_LIBRARY_PATH")
+        ngspice.recycle_shared_worker(lambda runs, memory: True)  # later tests: the real one
+    skipped = [n for n in result.notes if "skipped for every candidate" in n]
+    assert len(skipped) == 1
+    lumped = next(o for o in result.outcomes if o.name == "lumped")
+    assert lumped.ngspice is None and lumped.exact is not None
+    assert result.best is not None  # the exact leg and the ranking are still there

@@ -26,6 +26,7 @@ from xcheck.fitting.candidates import (
 from xcheck.circuit.expand import build_circuit
 from xcheck.engines.exact import ExactEngine, dominant_ring
 from xcheck.engines.modes import natural_modes_named
+from xcheck.engines.ngspice import INSTALL_WAYS, NgspiceUnavailable, ngspice_version
 from xcheck.engines.theory import TheoryNotApplicable, characterise
 from xcheck.errors import SimulationError, XcheckError
 from xcheck.fitting.next_measurement import next_measurements
@@ -113,15 +114,16 @@ def run_comparison(
     )
     by_name = {r.name: r for r in ranking}
     outcomes = []
-    version = ""
+    version, skipped = "", None
+    if use_ngspice:
+        say("starting ngspice")
+        version, skipped = _ngspice_status()
     for index, (candidate, fit) in enumerate(zip(candidates, fits), 1):
-        if use_ngspice and not fit.failed:
+        if use_ngspice and skipped is None and not fit.failed:
             say(f"ngspice run {index}/{len(candidates)}: {candidate.name}")
         outcome = _evaluate(fixture, candidate, fit, by_name[candidate.name], measured,
-                            observation, use_ngspice)
+                            observation, use_ngspice, skipped)
         outcomes.append(outcome)
-    if use_ngspice:
-        version = _ngspice_version()
     ordered = sorted(outcomes, key=lambda o: (o.ranked.rank is None, o.ranked.rank or 0))
     inputs = ([InputFile("fixture", display_path(fixture.source), sha256_of(fixture.source))]
               if fixture.source else [])
@@ -134,9 +136,11 @@ def run_comparison(
                                       measured.event_size, measured.probe_factor))
     best = next((o for o in ordered if o.ranked.rank == 1 and not o.failed), None)
     steps = next_measurements(fixture, best.fit) if best is not None else ()
-    verdict = write_verdict(fixture, measured, ordered, loop_findings, findings, steps)
+    skip_reason = skipped.reason if skipped is not None else ""
+    verdict = write_verdict(fixture, measured, ordered, loop_findings, findings, steps,
+                            ngspice_skipped=skip_reason)
     return Comparison(fixture, measured, observation, tuple(ordered), verdict, tuple(inputs),
-                      loop_findings, {}, version, findings, steps)
+                      loop_findings, {}, version, findings, steps, skip_reason)
 
 
 def _structural_rungs(fixture: Fixture, candidates: list[Candidate], fits: list[FitResult],
@@ -163,13 +167,15 @@ def _structural_rungs(fixture: Fixture, candidates: list[Candidate], fits: list[
     return structural_rungs(fixture, base, fit.parameters, mode, (inductances, capacitances))
 
 
-def _ngspice_version() -> str:
+def _ngspice_status() -> tuple[str, NgspiceUnavailable | None]:
+    """ngspice's version and None, or ``("unavailable", why)`` when it cannot be started
+    (checked once, so a missing library costs one child start, not one per candidate)."""
     try:
-        from xcheck.engines.ngspice import ngspice_version
-
-        return ngspice_version()
-    except (XcheckError, ImportError, OSError):
-        return "unavailable"
+        return ngspice_version(), None
+    except NgspiceUnavailable as exc:
+        return "unavailable", exc
+    except (XcheckError, ImportError, OSError) as exc:
+        return "unavailable", NgspiceUnavailable(str(exc))
 
 
 def _evaluate(
@@ -180,6 +186,7 @@ def _evaluate(
     measured: Measured,
     obs: Observation,
     use_ngspice: bool,
+    skipped: NgspiceUnavailable | None = None,
 ) -> CandidateOutcome:
     if fit.failed or fit.parameters is None:
         return CandidateOutcome(candidate, fit, ranked)
@@ -202,12 +209,18 @@ def _evaluate(
     ngspice_metrics = None
     ngspice_curve = None
     disagreement = float("nan")
-    if use_ngspice:
+    ngspice_error = ""
+    if use_ngspice and skipped is not None:
+        notes.append(f"ngspice leg skipped: ngspice's shared library could not be loaded "
+                     f"({skipped.reason.rstrip('.')}); install it: {INSTALL_WAYS}")
+    elif use_ngspice:
         try:
-            ngspice_curve, disagreement = _ngspice_curve(circuit, fit, obs)
+            ngspice_curve, disagreement, retried = _ngspice_curve(circuit, fit, obs)
+            notes.extend(retried)
             ngspice_metrics = _metrics("ngspice", obs, ngspice_curve, fit, measured,
                                        obs.ring(ngspice_curve))
         except SimulationError as exc:
+            ngspice_error = str(exc)
             notes.append(f"ngspice: {exc}")
     return CandidateOutcome(
         candidate,
@@ -222,16 +235,27 @@ def _evaluate(
         theory_curve,
         ngspice_curve,
         modes,
+        ngspice_error,
     )
 
 
-def _ngspice_curve(circuit, fit: FitResult, obs: Observation) -> tuple[np.ndarray, float]:
-    """ngspice's prediction with the fit's nuisance values applied, and its largest
-    difference from theory relative to the prediction's amplitude."""
-    from xcheck.engines.ngspice import simulate_ngspice
+def _ngspice_curve(circuit, fit: FitResult,
+                   obs: Observation) -> tuple[np.ndarray, float, tuple[str, ...]]:
+    """ngspice's prediction with the fit's nuisance values applied, its largest
+    difference from theory relative to the prediction's amplitude, and the notes of any
+    run that had to be repeated on a fresh ngspice child."""
+    from xcheck.engines.ngspice import RETRY_NOTE_START, simulate_ngspice
 
-    return obs.engine_curve(circuit, fit.nuisance,
-                            lambda stop: simulate_ngspice(circuit, stop_time=stop))
+    retried: list[str] = []
+
+    def simulate(stop: float):
+        waveform = simulate_ngspice(circuit, stop_time=stop)
+        retried.extend(f"ngspice: {note}" for note in waveform.notes
+                       if note.startswith(RETRY_NOTE_START))
+        return waveform
+
+    curve, disagreement = obs.engine_curve(circuit, fit.nuisance, simulate)
+    return curve, disagreement, tuple(retried)
 
 
 def _metrics(engine: str, obs: Observation, curve: np.ndarray | None, fit: FitResult,

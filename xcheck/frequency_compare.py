@@ -13,7 +13,7 @@ returns data only (:class:`FrequencyComparison`); the report turns it into words
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Callable
 
@@ -21,6 +21,7 @@ import numpy as np
 
 from xcheck.capture.resonance import Resonance, find_resonances
 from xcheck.capture.sweep_types import FrequencySweep
+from xcheck.engines.ngspice import NgspiceUnavailable
 from xcheck.engines.swept import paired_response, swept_engine
 from xcheck.errors import SimulationError, XcheckError
 from xcheck.fitting.candidates import Candidate
@@ -34,6 +35,8 @@ from xcheck.fixture.model import Fixture
 #: ngspice ``.ac`` points per decade for the SPICE leg (its own grid; the exact engine
 #: is evaluated on it too for the engines' agreement).
 AC_POINTS_PER_DECADE = 50
+#: The note of a candidate whose ngspice leg was not run because it was not asked for.
+NOT_ASKED = "ngspice was not asked for"
 
 
 @dataclass(frozen=True)
@@ -153,12 +156,14 @@ def _evaluate(fixture: Fixture, obs: SweepObservation, candidate: Candidate,
                                          "element, so ngspice's .ac leg is skipped")
     if not use_ngspice:
         return SweepOutcome(candidate, laws, fit, exact, resonances=resonances,
-                            rms_log_error=rms, ngspice_note="ngspice was not asked for")
+                            rms_log_error=rms, ngspice_note=NOT_ASKED)
     from xcheck.engines.ac_deck import AcSweep, simulate_ac_ngspice
 
     try:
         plot = simulate_ac_ngspice(engine, AcSweep(AC_POINTS_PER_DECADE, float(f[0]),
                                                    float(f[-1])))
+    except NgspiceUnavailable:
+        raise  # the caller skips the leg for every candidate, saying so once
     except (SimulationError, XcheckError) as exc:
         return SweepOutcome(candidate, laws, fit, exact, resonances=resonances,
                             rms_log_error=rms, ngspice_note=f"ngspice's .ac run failed: {exc}")
@@ -216,6 +221,7 @@ def run_frequency_comparison(fixture: Fixture, sweep: FrequencySweep, *,
             "and phase were known to the same relative error, and the noise level is "
             "estimated from the residuals")
     outcomes = []
+    unavailable = False
     bics: dict[str, float] = {}
     for number, candidate in enumerate(candidates, 1):
         if progress is not None:
@@ -226,8 +232,17 @@ def run_frequency_comparison(fixture: Fixture, sweep: FrequencySweep, *,
         fit = (FitResult(candidate.name, False, skip) if skip
                else fit_candidate(fixture, candidate, fitted_to))
         bics[candidate.name] = fit.bic if not fit.failed else math.inf
-        outcomes.append(_evaluate(fixture, obs, candidate, laws[candidate.name], fit,
-                                  use_ngspice))
+        try:
+            outcome = _evaluate(fixture, obs, candidate, laws[candidate.name], fit,
+                                use_ngspice and not unavailable)
+        except NgspiceUnavailable as exc:
+            unavailable = True
+            notes.append(f"ngspice's .ac leg was skipped for every candidate: {exc}")
+            outcome = _evaluate(fixture, obs, candidate, laws[candidate.name], fit, False)
+        if unavailable and outcome.ngspice_note == NOT_ASKED:
+            outcome = replace(outcome, ngspice_note="ngspice could not be started (see the "
+                                                    "notes)")
+        outcomes.append(outcome)
     ranking = rank_by_bic([o.name for o in outcomes], [o.fit.bic for o in outcomes],
                           [o.fit.failed for o in outcomes])
     return FrequencyComparison(fixture, sweep, tuple(outcomes), tuple(ranking),

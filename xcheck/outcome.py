@@ -69,6 +69,9 @@ class CandidateOutcome:
     #: The fitted circuit's natural modes, largest share first
     #: (:func:`xcheck.engines.modes.natural_modes_named`).
     modes: tuple[NamedMode, ...] = ()
+    #: Why ngspice could not run this candidate's deck (its own lines quoted), or ''
+    #: when it ran or was not asked to; the same text is in :attr:`engine_notes`.
+    ngspice_error: str = ""
 
     @property
     def name(self) -> str:
@@ -114,6 +117,9 @@ class Comparison:
     #: Readings that would cut the best candidate's uncertainties most
     #: (:func:`xcheck.fitting.next_measurement.next_measurements`), best first.
     next_measurements: tuple = ()
+    #: Why the SPICE leg was skipped for every candidate (ngspice could not be loaded:
+    #: the loader's reason), or '' when ngspice ran or was not asked for.
+    ngspice_skipped: str = ""
 
     @property
     def best(self) -> CandidateOutcome | None:

@@ -2,7 +2,8 @@
 
 :func:`write_loop_findings` says how much series loss the best candidate needs beyond
 the DC loop reading; :func:`write_verdict` composes the verdict paragraph from the ranked
-outcomes, the measured-side findings and those loop findings. Both only read
+outcomes, the measured-side findings and those loop findings, and ends it with what
+went wrong with the SPICE leg (:func:`spice_sentences`). They only read
 :mod:`xcheck.outcome` records; :mod:`xcheck.compare` runs the comparison and calls them.
 """
 
@@ -18,6 +19,7 @@ from xcheck.fitting.candidates import (
     describe_key,
     meter_uncertainty,
 )
+from xcheck.engines.ngspice import INSTALL_WAYS
 from xcheck.fitting.fit import FittedValue
 from xcheck.fixture.model import Fixture
 from xcheck.measured import Measured
@@ -220,9 +222,36 @@ def _bound_sentence(fixture: Fixture, value: FittedValue) -> str:
     return text
 
 
+def spice_sentences(outcomes: list[CandidateOutcome], skipped: str = "") -> list[str]:
+    """What went wrong with the SPICE leg: one sentence when ngspice could not be loaded
+    (``skipped``: the loader's reason), else one per candidate ngspice could not run.
+
+    Parameters
+    ----------
+    outcomes
+        Every candidate's outcome; :attr:`~xcheck.outcome.CandidateOutcome.ngspice_error`
+        holds ngspice's message for a deck it could not run.
+    skipped
+        Why ngspice could not be loaded, or '' when it was (or was not asked for).
+
+    Returns
+    -------
+    list of str
+        Finished sentences, possibly none.
+    """
+    if skipped:
+        return [_sentence(
+            f"The SPICE leg was skipped for every candidate because ngspice could not be "
+            f"loaded ({skipped.rstrip('.')}), so the comparison rests on the exact "
+            f"state-space engine alone; to add it, install ngspice's shared library: "
+            f"{INSTALL_WAYS}")]
+    return [_sentence(f"Candidate '{o.name}' has no SPICE leg: {o.ngspice_error.rstrip('.')}")
+            for o in outcomes if o.ngspice_error]
+
+
 def write_verdict(fixture: Fixture, measured: Measured, outcomes: list[CandidateOutcome],
                   loop_findings: tuple[str, ...], findings: tuple = (),
-                  next_steps: tuple = ()) -> str:
+                  next_steps: tuple = (), ngspice_skipped: str = "") -> str:
     """One paragraph a reviewer can read: best candidate, the fitted extra, how much
     worse the as-measured model does, and the measured-side findings.
 
@@ -240,6 +269,11 @@ def write_verdict(fixture: Fixture, measured: Measured, outcomes: list[Candidate
     findings
         Sanity findings (:func:`xcheck.sanity.sanity_findings`): they come first, after
         a misfit warning, as things to check before reading the numbers.
+    next_steps
+        The readings that would help most (:mod:`xcheck.fitting.next_measurement`).
+    ngspice_skipped
+        Why ngspice could not be loaded, when the SPICE leg was skipped for every
+        candidate: one sentence with the install help (:func:`spice_sentences`).
 
     Returns
     -------
@@ -247,9 +281,10 @@ def write_verdict(fixture: Fixture, measured: Measured, outcomes: list[Candidate
         The verdict paragraph.
     """
     best = next((o for o in outcomes if o.ranked.rank == 1), None)
+    spice = spice_sentences(outcomes, ngspice_skipped)
     if best is None:
-        return ("No candidate could be fitted to this measurement; see each candidate's "
-                "reason below.")
+        return " ".join(["No candidate could be fitted to this measurement; see each "
+                         "candidate's reason below.", *spice])
     parts = []
     misfit = _misfit(best, measured)
     if misfit is not None:
@@ -308,7 +343,7 @@ def write_verdict(fixture: Fixture, measured: Measured, outcomes: list[Candidate
     parts.extend(measured.findings)
     if next_steps:
         parts.append(f"Next measurement: {next_steps[0].sentence}")
-    parts = [_sentence(p) for p in parts]
+    parts = [_sentence(p) for p in parts] + spice
     if best.engines_disagree:
         parts.append(
             f"Warning: ngspice and theory differ by {best.engine_disagreement:.2%} of the "

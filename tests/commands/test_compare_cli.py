@@ -93,7 +93,7 @@ def test_a_previous_report_is_replaced(tmp_path, fixture_path):
     [
         (["--trace", "missing.csv"], r"missing\.csv"),
         (["--trace", "{trace}", "--peaks", "{trace}"], r"not allowed with"),
-        ([], r"one of the arguments --trace --peaks is required"),
+        ([], r"compare needs a measurement: a trace \(--trace\)"),
         (["--trace", "{trace}", "--event-time", "1M"], r"--event-time.*upper-case 'M'"),
     ],
 )

@@ -6,7 +6,16 @@ it, and a run can hang. Each :class:`NgspiceWorker` is one long-lived child proc
 library once and then serves decks one at a time over a pipe; the parent waits for each
 answer with a timeout, and a hang or crash becomes a :class:`SimulationError` naming the
 deck, after which the child is stopped and a fresh one started on demand. Reusing the
-child avoids paying interpreter and library start-up (about a second) for each deck. As
+child avoids paying interpreter and library start-up (about a second) for each deck.
+
+The faults, each a :class:`SimulationError` subclass or message the callers can tell
+apart: a library that cannot be loaded (missing, or not a library) is
+:class:`NgspiceUnavailable`, with the install help and the loader's reason; a deck
+ngspice rejects or cannot finish (non-convergence, "Timestep too small") names the deck
+and quotes ngspice's own lines; a run past its timeout has its child killed; a child
+that dies during a run is :class:`NgspiceCrashed`, and :func:`run_deck`,
+:func:`run_ac_deck` and :class:`NgspicePool` then repeat the run once on a fresh child
+(:data:`CRASH_RETRIES`), with a note on the result saying so. As
 with any use of Python's ``spawn`` start method, a script that calls this module must
 keep its top-level code under ``if __name__ == "__main__":``.
 
@@ -39,6 +48,7 @@ import multiprocessing
 import os
 import queue
 import re
+import signal
 import threading
 from collections.abc import Callable, Sequence
 from concurrent.futures import ThreadPoolExecutor
@@ -52,14 +62,23 @@ from xcheck.circuit.model import Circuit
 from xcheck.errors import SimulationError
 from xcheck.engines.waveform import Waveform
 
-#: What to install when the shared library cannot be loaded.
-INSTALL_HELP = (
-    "ngspice's shared library could not be loaded. Install it: Debian/Ubuntu "
-    "'apt-get install libngspice0-dev' (provides libngspice.so); macOS Homebrew "
-    "'brew install libngspice'; conda 'conda install -c conda-forge ngspice-lib'; or set "
-    "NGSPICE_LIBRARY_PATH to the full path of the library file (libngspice.so, "
+#: The ways to install the shared library (a clause, no capital, no full stop).
+INSTALL_WAYS = (
+    "Debian/Ubuntu 'apt-get install libngspice0-dev' (provides libngspice.so); macOS "
+    "Homebrew 'brew install libngspice'; conda 'conda install -c conda-forge ngspice-lib'; "
+    "or set NGSPICE_LIBRARY_PATH to the full path of the library file (libngspice.so, "
     "libngspice.dylib or ngspice.dll)"
 )
+
+#: What to install when the shared library cannot be loaded.
+INSTALL_HELP = f"ngspice's shared library could not be loaded. Install it: {INSTALL_WAYS}"
+
+#: Times :func:`run_deck`, :func:`run_ac_deck` and :class:`NgspicePool` repeat a run
+#: whose child process died during it (on a fresh child each time).
+CRASH_RETRIES = 1
+
+#: How the note on a result that needed a fresh child begins.
+RETRY_NOTE_START = "ngspice's child process died during this run"
 
 #: Seconds allowed for a child process to start and load the library.
 START_TIMEOUT = 120.0
@@ -67,9 +86,66 @@ START_TIMEOUT = 120.0
 #: Most ngspice lines quoted in an error message.
 MAX_MESSAGE_LINES = 10
 
+class NgspiceUnavailable(SimulationError):
+    """ngspice could not be started: its shared library is missing or is not a library,
+    PySpice is missing, or the child process did not come up.
+
+    Attributes
+    ----------
+    reason
+        The cause in a few words (the loader's own message, shortened), without the
+        install help that the full message carries.
+    """
+
+    def __init__(self, message: str, reason: str = "") -> None:
+        super().__init__(message)
+        self.reason = reason or message
+
+
+class NgspiceCrashed(SimulationError):
+    """The child process died during a run (killed, or crashed inside the library).
+
+    Attributes
+    ----------
+    exit_code
+        The child's exit code (negative: the signal that ended it), or None.
+    """
+
+    def __init__(self, message: str, exit_code: int | None = None) -> None:
+        super().__init__(message)
+        self.exit_code = exit_code
+
+
+def _how_it_ended(code: int | None) -> str:
+    """``"exit code -9, signal SIGKILL"`` for a child's exit code."""
+    if code is None:
+        return "exit code unknown"
+    if code < 0:
+        try:
+            return f"exit code {code}, signal {signal.Signals(-code).name}"
+        except ValueError:
+            return f"exit code {code}"
+    return f"exit code {code}"
+
+
+def _short_load_error(exc: BaseException) -> str:
+    """The loader's message without cffi's note about ``find_library``."""
+    text = " ".join(str(exc).split())
+    return text.split(" Additionally, ctypes.util.find_library()", 1)[0].rstrip(". ")
+
+
 _ERROR_LINE = re.compile(
     r"(^\s*error\b|\berror:|\baborted\b|timestep too small|\bfatal\b)",
     re.IGNORECASE,
+)
+_NO_CONVERGENCE = re.compile(
+    r"(timestep too small|singular matrix|no convergence|gmin stepping failed|"
+    r"source stepping failed|iteration limit)", re.IGNORECASE)
+
+#: Added after ngspice's own lines when they say the run did not converge.
+NO_CONVERGENCE_HINT = (
+    "(the run did not converge; usual causes: a node with no DC path to ground, a loop "
+    "of ideal voltage sources and inductors, or element values many decades apart)"
 )
 _TRAN_LINE = re.compile(r"^\s*\.tran\s+(\S+)\s+(\S+)", re.IGNORECASE | re.MULTILINE)
 
@@ -171,13 +247,22 @@ def _quiet_shared_class() -> type:
 
 
 def _load_ngspice() -> Any:
-    """Load the shared library in this (child) process; SimulationError when missing."""
+    """Load the shared library in this (child) process.
+
+    Raises
+    ------
+    NgspiceUnavailable
+        The library (``NGSPICE_LIBRARY_PATH``, else the loader's search path) is
+        missing or not a loadable library, or PySpice is missing; the message says what
+        to install, :attr:`NgspiceUnavailable.reason` what the loader said.
+    """
     logging.getLogger("PySpice").setLevel(logging.CRITICAL + 1)
     try:
         cls = _quiet_shared_class()
         return cls(ngspice_id=0, send_data=False)
     except (OSError, ImportError) as exc:  # dlopen failure or PySpice missing
-        raise SimulationError(f"{INSTALL_HELP}. (Loading failed with: {exc})") from None
+        raise NgspiceUnavailable(f"{INSTALL_HELP}. (Loading failed with: {exc})",
+                                 _short_load_error(exc)) from None
 
 
 def _version_of(shared: Any) -> str:
@@ -196,6 +281,16 @@ def _error_lines(shared: Any) -> list[str]:
     wanted = [line for line in shared._stdout if _ERROR_LINE.search(line)] + shared._stderr
     unique = list(dict.fromkeys(line.strip() for line in wanted if line.strip()))
     return unique[:MAX_MESSAGE_LINES]
+
+
+def _failure_detail(errors: list[str], rc: int, missing: str) -> str:
+    """ngspice's error lines joined (with :data:`NO_CONVERGENCE_HINT` when they say the
+    run did not converge), else the return code, else ``missing``."""
+    if errors:
+        hint = (f" {NO_CONVERGENCE_HINT}"
+                if any(_NO_CONVERGENCE.search(line) for line in errors) else "")
+        return "; ".join(errors) + hint
+    return f"return code {rc}" if rc else missing
 
 
 def _returned_code(call: Any, *args: Any) -> int:
@@ -254,9 +349,8 @@ def _run_in_child(shared: Any, run: DeckRun) -> dict[str, Any]:
         errors = _error_lines(shared)
         plot_name = shared.last_plot
         if rc or errors or not plot_name.startswith("tran"):
-            detail = "; ".join(errors) or (
-                f"return code {rc}" if rc else f"no transient results (last plot {plot_name!r})"
-            )
+            detail = _failure_detail(errors, rc,
+                                     f"no transient results (last plot {plot_name!r})")
             raise SimulationError(f"ngspice failed to run {label}: {detail}")
         plot = shared.plot(None, plot_name)
         time = np.asarray(plot["time"]._data, dtype=float)
@@ -313,9 +407,7 @@ def _run_ac_in_child(shared: Any, run: AcDeckRun) -> dict[str, Any]:
         errors = _error_lines(shared)
         plot_name = shared.last_plot
         if rc or errors or not plot_name.startswith("ac"):
-            detail = "; ".join(errors) or (
-                f"return code {rc}" if rc else f"no AC results (last plot {plot_name!r})"
-            )
+            detail = _failure_detail(errors, rc, f"no AC results (last plot {plot_name!r})")
             raise SimulationError(f"ngspice failed to run {label}: {detail}")
         plot = shared.plot(None, plot_name)
         frequency = _complex_vector(plot, "frequency").real
@@ -365,8 +457,8 @@ def _serve(conn: Connection) -> None:
     try:
         shared = _load_ngspice()
         conn.send(("ready", _version_of(shared)))
-    except SimulationError as exc:
-        conn.send(("missing", str(exc)))
+    except NgspiceUnavailable as exc:
+        conn.send(("missing", (str(exc), exc.reason)))
         conn.close()
         return
     while True:
@@ -399,6 +491,7 @@ class NgspiceWorker:
         self._conn: Connection | None = None
         self._version = ""
         self.runs = 0  # decks the running child has served (for recycling it)
+        self.replaced = 0  # children this worker started afresh to repeat a run
 
     @property
     def pid(self) -> int | None:
@@ -423,26 +516,28 @@ class NgspiceWorker:
         self._process, self._conn = process, parent_conn
         if not parent_conn.poll(START_TIMEOUT):
             self.stop()
-            raise SimulationError(
-                f"ngspice did not start within {START_TIMEOUT:g} s; {INSTALL_HELP}"
-            )
+            raise NgspiceUnavailable(
+                f"ngspice did not start within {START_TIMEOUT:g} s; {INSTALL_HELP}",
+                f"the child process did not start within {START_TIMEOUT:g} s")
         try:
             status, payload = parent_conn.recv()
         except EOFError:
+            process.join(5.0)
             code = process.exitcode
             self.stop()
-            raise SimulationError(
+            raise NgspiceUnavailable(
                 f"the ngspice child process exited during start-up (exit code {code}). "
                 "When xcheck is called from a script, the script's top-level code must sit "
                 "under 'if __name__ == \"__main__\":' (Python's spawn start method re-imports "
-                f"it in the child). Otherwise the library may be broken: {INSTALL_HELP}"
-            ) from None
+                f"it in the child). Otherwise the library may be broken: {INSTALL_HELP}",
+                f"the child process exited during start-up ({_how_it_ended(code)})") from None
         if status != "ready":
             self.stop()
-            raise SimulationError(payload)
+            message, reason = payload
+            raise NgspiceUnavailable(message, reason)
         self._version = payload
 
-    def run(self, run: DeckRun, timeout: float = 60.0) -> Waveform:
+    def run(self, run: DeckRun, timeout: float = 60.0, retries: int = 0) -> Waveform:
         """Run one deck and return its probe voltage (and loop current).
 
         Parameters
@@ -451,7 +546,11 @@ class NgspiceWorker:
             The deck and what to read back.
         timeout
             Seconds the run may take once the child is up; beyond it the child is
-            stopped and SimulationError raised.
+            killed and SimulationError raised (the next run starts a fresh child).
+        retries
+            Times to repeat the run on a fresh child when the child dies during it
+            (the module's functions and :class:`NgspicePool` pass
+            :data:`CRASH_RETRIES`); a repeated run says so in ``notes``.
 
         Returns
         -------
@@ -460,22 +559,26 @@ class NgspiceWorker:
 
         Raises
         ------
+        NgspiceUnavailable
+            The library cannot be loaded (the message says what to install).
+        NgspiceCrashed
+            The child died during the run, on every try.
         SimulationError
-            ngspice missing, deck rejected, run failed, hung or crashed.
+            Deck rejected or run failed (ngspice's lines quoted), or hung.
         """
-        payload = self._exchange(
+        payload, retry_notes = self._exchange(
             run, timeout, "check the deck's .tran stop time and maximum step, or allow a "
-            "longer timeout")
+            "longer timeout", retries)
         notes = tuple(f"ngspice: {line}" for line in dict.fromkeys(payload["warnings"]))
         return Waveform(
             time=payload["time"],
             probe_voltage=payload["probe"],
             loop_current=payload["current"],
             engine="ngspice",
-            notes=notes,
+            notes=retry_notes + notes,
         )
 
-    def run_ac(self, run: AcDeckRun, timeout: float = 60.0) -> AcPlot:
+    def run_ac(self, run: AcDeckRun, timeout: float = 60.0, retries: int = 0) -> AcPlot:
         """Run one ``.ac`` deck and return its complex output.
 
         Parameters
@@ -484,6 +587,8 @@ class NgspiceWorker:
             The deck and what to read back.
         timeout
             Seconds the run may take once the child is up.
+        retries
+            Times to repeat the run on a fresh child when the child dies during it.
 
         Returns
         -------
@@ -492,15 +597,46 @@ class NgspiceWorker:
         Raises
         ------
         SimulationError
-            ngspice missing, deck rejected, run failed, hung or crashed.
+            ngspice missing (:class:`NgspiceUnavailable`), deck rejected, run failed,
+            hung, or crashed on every try (:class:`NgspiceCrashed`).
         """
-        payload = self._exchange(
+        payload, retry_notes = self._exchange(
             run, timeout, "check the deck's .ac points per decade and range, or allow a "
-            "longer timeout")
+            "longer timeout", retries)
         notes = tuple(f"ngspice: {line}" for line in dict.fromkeys(payload["warnings"]))
-        return AcPlot(payload["frequency"], payload["response"], notes)
+        return AcPlot(payload["frequency"], payload["response"], retry_notes + notes)
 
-    def _exchange(self, run: DeckRun | AcDeckRun, timeout: float, hint: str) -> dict[str, Any]:
+    def _exchange(self, run: DeckRun | AcDeckRun, timeout: float, hint: str,
+                  retries: int = 0) -> tuple[dict[str, Any], tuple[str, ...]]:
+        """One request's answer, repeated on a fresh child up to ``retries`` times when
+        the child dies during it; also the notes saying it was repeated."""
+        deaths: list[NgspiceCrashed] = []
+        while True:
+            try:
+                payload = self._exchange_once(run, timeout, hint)
+            except NgspiceCrashed as exc:
+                deaths.append(exc)
+                if len(deaths) > retries:
+                    raise self._crashed_again(run, deaths) if len(deaths) > 1 else exc
+                self.replaced += 1
+                continue
+            notes = tuple(
+                f"{RETRY_NOTE_START} ({_how_it_ended(death.exit_code)}); a fresh one "
+                f"was started and ran it again" for death in deaths)
+            return payload, notes
+
+    @staticmethod
+    def _crashed_again(run: DeckRun | AcDeckRun, deaths: list[NgspiceCrashed]) -> NgspiceCrashed:
+        ends = ", then ".join(_how_it_ended(d.exit_code) for d in deaths)
+        return NgspiceCrashed(
+            f"deck {run.name!r}: the ngspice child process died during the run "
+            f"{len(deaths)} times, each time on a fresh process ({ends}); the deck itself "
+            "may crash ngspice (try it with the ngspice program: 'ngspice -b DECK'), or "
+            "something on this machine is killing the process (an out-of-memory killer, "
+            "a job limit)", deaths[-1].exit_code)
+
+    def _exchange_once(self, run: DeckRun | AcDeckRun, timeout: float,
+                       hint: str) -> dict[str, Any]:
         """Send one request to the child and return its answer's payload."""
         self._ensure_started()
         assert self._conn is not None and self._process is not None
@@ -508,13 +644,18 @@ class NgspiceWorker:
         try:
             self._conn.send(run)
         except (BrokenPipeError, OSError):
+            process = self._process
+            process.join(5)
+            code = process.exitcode
             self.stop()
-            raise SimulationError(f"deck {run.name!r}: the ngspice process is gone") from None
+            raise NgspiceCrashed(
+                f"deck {run.name!r}: the ngspice process is gone ({_how_it_ended(code)})",
+                code) from None
         if not self._conn.poll(timeout):
             self.stop(force=True)
             raise SimulationError(
-                f"deck {run.name!r}: ngspice did not finish within {timeout:g} s and was "
-                f"stopped; {hint}"
+                f"deck {run.name!r}: ngspice did not finish within {timeout:g} s, so its "
+                f"process was killed (the next run starts a fresh one); {hint}"
             )
         try:
             status, payload = self._conn.recv()
@@ -522,8 +663,8 @@ class NgspiceWorker:
             self._process.join(5)
             code = self._process.exitcode
             self.stop()
-            raise SimulationError(
-                f"deck {run.name!r}: ngspice crashed during the run (exit code {code})"
+            raise NgspiceCrashed(
+                f"deck {run.name!r}: ngspice crashed during the run (exit code {code})", code
             ) from None
         if status != "ok":
             raise SimulationError(payload)
@@ -602,7 +743,7 @@ class NgspicePool:
         def one(run: DeckRun) -> Waveform | SimulationError:
             worker = self._free.get()
             try:
-                return worker.run(run, timeout)
+                return worker.run(run, timeout, CRASH_RETRIES)
             except SimulationError as exc:
                 return exc
             finally:
@@ -698,13 +839,15 @@ def run_deck(
     Raises
     ------
     SimulationError
-        ngspice missing (the message says what to install), deck rejected (ngspice's
-        error lines quoted), run failed, hung past ``timeout`` or crashed.
+        ngspice missing (:class:`NgspiceUnavailable`; the message says what to
+        install), deck rejected (ngspice's error lines quoted), run failed, hung past
+        ``timeout``, or its child died on the run and on its one repeat on a fresh child
+        (:class:`NgspiceCrashed`; a repeat that succeeds says so in ``notes``).
     """
     with _shared_lock:
         return _default_worker().run(
-            DeckRun(deck_text, tuple(probe), current_sense, name, probe_current), timeout
-        )
+            DeckRun(deck_text, tuple(probe), current_sense, name, probe_current), timeout,
+            CRASH_RETRIES)
 
 
 def run_ac_deck(
@@ -742,7 +885,7 @@ def run_ac_deck(
     """
     with _shared_lock:
         return _default_worker().run_ac(AcDeckRun(deck_text, tuple(probe), name, probe_current),
-                                        timeout)
+                                        timeout, CRASH_RETRIES)
 
 
 def simulate_ngspice(
