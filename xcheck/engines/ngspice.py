@@ -454,6 +454,9 @@ def _run_ac_in_child(shared: Any, run: AcDeckRun) -> dict[str, Any]:
 
 def _serve(conn: Connection) -> None:
     """Child process main loop: load ngspice, then answer requests until told to stop."""
+    # Ctrl-C reaches the whole process group; the parent decides (it stops this child),
+    # so the child never prints a KeyboardInterrupt traceback of its own.
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
     try:
         shared = _load_ngspice()
         conn.send(("ready", _version_of(shared)))
