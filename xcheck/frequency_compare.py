@@ -294,14 +294,16 @@ def _with_time_unknowns(fixture: Fixture, candidates: list[Candidate]) -> list[C
     return out
 
 
-def read_sweep_file(path: str | Path) -> FrequencySweep:
-    """A sweep file by its name: Touchstone (``.s1p``, ``.s2p``, ``.ts``) or a CSV sweep;
-    an LCR-meter table is read by :func:`xcheck.capture.lcr_table.read_lcr_table`."""
+def read_sweep_file(path: str | Path, connection: str | None = None) -> FrequencySweep:
+    """A sweep file by its name: Touchstone (``.s1p``, ``.s2p``, ``.ts``; a two-port with
+    its ``connection``, "shunt" or "series", from the fixture's ``[swept]`` table) or a
+    CSV sweep; an LCR-meter table is read by
+    :func:`xcheck.capture.lcr_table.read_lcr_table`."""
     name = str(path).lower()
     if name.endswith((".s1p", ".s2p", ".ts")):
         from xcheck.capture.touchstone import read_touchstone
 
-        return read_touchstone(path)
+        return read_touchstone(path, connection=connection)
     from xcheck.capture.sweep_csv import read_sweep_csv
 
     return read_sweep_csv(path)

@@ -133,3 +133,27 @@ def test_a_sweep_without_a_swept_table_is_refused(tmp_path: Path, capsys) -> Non
     err = capsys.readouterr().err
     assert status == 2 and "add a [swept] table" in err and "Traceback" not in err
     assert not (tmp_path / "o").exists()
+
+
+def test_a_two_port_needs_its_connection_in_the_swept_table(tmp_path: Path, capsys) -> None:
+    skrf = pytest.importorskip("skrf")
+    f = np.geomspace(1e3, 30e6, 40)
+    z = _impedance(f)
+    # The part from the line to ground between two 50-ohm ports: S21 = 2 Z / (2 Z + Z0),
+    # S11 = -Z0 / (2 Z + Z0) (see tests/capture/test_touchstone.py for the derivation).
+    s21 = 2 * z / (2 * z + 50.0)
+    s11 = -50.0 / (2 * z + 50.0)
+    s = np.stack([np.stack([s11, s21], -1), np.stack([s21, s11], -1)], -2)
+    skrf.Network(frequency=skrf.Frequency.from_f(f, unit="Hz"), s=s, z0=50).write_touchstone(
+        str(tmp_path / "fixture2"))
+    two_port = str(tmp_path / "fixture2.s2p")
+    out = tmp_path / "out"
+    assert main(["compare", str(_fixture(tmp_path)), "--sweep", two_port, "--out", str(out),
+                 "--quiet", "--no-ngspice"]) == 2
+    assert "[swept] table, e.g. connection = \"shunt\"" in capsys.readouterr().err
+    shunt = FIXTURE.replace('part = "C1"\n', 'part = "C1"\nconnection = "shunt"\n')
+    assert main(["compare", str(_fixture(tmp_path, shunt)), "--sweep", two_port, "--out",
+                 str(out), "--quiet", "--no-ngspice"]) == 0
+    lumped = next(c for c in _summary(out)["frequency_sweep"]["candidates"]
+                  if c["name"] == "lumped")
+    assert lumped["fitted"]["C1.value"] == pytest.approx(C, rel=1e-6)

@@ -92,7 +92,8 @@ def read_touchstone(
         raise SweepError(name, [
             "this is a two-port file: say how the part sat between the ports with "
             "connection='shunt' (from the line to ground) or connection='series' (in the "
-            "line between the ports)"])
+            "line between the ports); from the command line, write it in the fixture's "
+            '[swept] table, e.g. connection = "shunt"'])
     scan = _scan(name, text, ports)
     problems, reverse = frequency_problems(scan.frequency, scan.lines, "the frequencies")
     if problems:

@@ -40,7 +40,8 @@ def run_sweep(args: argparse.Namespace, fixture, out: Path, say: Callable[[str],
 
         sweep = read_lcr_table(path).sweep
     else:
-        sweep = read_sweep_file(path)
+        setting = fixture.swept
+        sweep = read_sweep_file(path, setting.connection if setting is not None else None)
     inputs = [("fixture", display_path(fixture.source), sha256_of(fixture.source)),
               ("sweep", display_path(path), sha256_of(path))]
     timed = None
