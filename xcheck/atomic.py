@@ -38,6 +38,8 @@ import os
 import re
 import secrets
 import shutil
+import signal
+import threading
 from collections.abc import Callable, Iterable, Iterator
 from contextvars import ContextVar
 from pathlib import Path
@@ -579,27 +581,46 @@ def write_folder_atomically(
     """
     folder = Path(folder)
     refuse_foreign_folder(folder, is_ours, option, hint=hint)
+    staging: Path | None = None
+    lock: int | None = None
     try:
-        folder.parent.mkdir(parents=True, exist_ok=True)
-        remove_stray_temporaries(folder)
-        # The strays' check ran before an old folder was put back: check again.
-        refuse_foreign_folder(folder, is_ours, option, hint=hint)
-        staging = _sibling(folder, ".tmp", _new_folder)
-    except OSError as exc:
-        raise _cannot_write(folder, option, exc) from exc
-    lock = _hold(staging)
-    try:
+        try:
+            folder.parent.mkdir(parents=True, exist_ok=True)
+            remove_stray_temporaries(folder)
+            # The strays' check ran before an old folder was put back: check again.
+            refuse_foreign_folder(folder, is_ours, option, hint=hint)
+            staging = _sibling(folder, ".tmp", _new_folder)
+        except OSError as exc:
+            raise _cannot_write(folder, option, exc) from exc
+        # From here on, an interrupt (Ctrl-C) anywhere removes the staging folder.
+        lock = _hold(staging)
         writer(staging)
         _swap_in(staging, folder)
     except OSError as exc:
-        shutil.rmtree(staging, ignore_errors=True)
+        _remove_staging(staging)
         raise _cannot_write(folder, option, exc) from exc
     except BaseException:
-        shutil.rmtree(staging, ignore_errors=True)
+        _remove_staging(staging)
         raise
     finally:
         _release(lock)
     return folder
+
+
+def _remove_staging(staging: Path | None) -> None:
+    """Remove a staging folder, with Ctrl-C held off until it is gone (a second
+    interrupt would otherwise leave half of it behind); in the main thread only, where
+    signals are delivered."""
+    if staging is None:
+        return
+    blocked = threading.current_thread() is threading.main_thread()
+    if blocked:
+        signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGINT})
+    try:
+        shutil.rmtree(staging, ignore_errors=True)
+    finally:
+        if blocked:
+            signal.pthread_sigmask(signal.SIG_UNBLOCK, {signal.SIGINT})
 
 
 def _swap_in(staging: Path, folder: Path) -> None:

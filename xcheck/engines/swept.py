@@ -59,11 +59,15 @@ def swept_circuit(fixture: Fixture, parameters: ParameterSet,
     """
     if setting.measures == "transfer":
         return build_circuit(fixture, parameters), None
+    # The scope is off the fixture for an impedance: its loading is left out (and would
+    # form a loop with a switch's 0 V source when the impedance is across the switch).
     if setting.between is not None:
-        moved = replace(fixture, probe=None, probe_kind="nodes", probe_nodes=setting.between)
+        moved = replace(fixture, probe=None, probe_kind="nodes", probe_nodes=setting.between,
+                        probe_loading=None)
     else:
         name = setting.part if setting.part is not None else setting.across
-        moved = replace(fixture, probe=name, probe_kind="part", probe_nodes=None)
+        moved = replace(fixture, probe=name, probe_kind="part", probe_nodes=None,
+                        probe_loading=None)
     whole = build_circuit(moved, parameters)
     plus, minus = whole.probe
     if setting.part is not None:

@@ -51,6 +51,10 @@ LUMPED_FIELDS: dict[str, tuple[str, ...]] = {
 TYPICAL_START: dict[str, float] = {"esr": 0.01, "esl": 5e-9, "dcr": 0.05,
                                    "parallel_capacitance": 10e-12, "inductance": 10e-9,
                                    "resistance": 0.01}
+#: A free value may grow to this many times its stated or typical size.
+SPAN = 1e3
+#: Where a parasitic the fixture leaves out starts, as a fraction of its typical size.
+ABSENT_START = 1e-3
 #: Largest value a free parasitic may take, by unit (far beyond any bench part).
 UPPER: dict[str, float] = {"ohm": 1e6, "H": 10.0, "F": 1.0}
 
@@ -66,7 +70,9 @@ def _sweep_starts(sweep: FrequencySweep, part_kind: str) -> dict[str, float]:
             starts["value"] = -1.0 / (w[0] * z[0].imag)
         if z[-1].imag > 0:
             starts["esl"] = z[-1].imag / w[-1]
-        starts["esr"] = max(float(np.min(z.real)), 1e-6)
+        # At the |Z| minimum the reactances cancel or are smallest: Re Z is the ESR there
+        # (elsewhere the noise of a large reactance swamps the real part).
+        starts["esr"] = float(z[int(np.argmin(np.abs(z)))].real)
     elif part_kind == "inductor":
         if z[0].imag > 0:
             starts["value"] = z[0].imag / w[0]
@@ -82,9 +88,19 @@ def _free_value(fixture: Fixture, key: ParameterKey, parameters: ParameterSet,
     spec = fixture.field_spec(key)
     unit = spec.unit if spec is not None else "ohm"
     stated = parameters.get(key)
-    value = start if start is not None else (stated if stated else TYPICAL_START.get(key[1], 1.0))
-    return FreeParameter(key, float(value), 0.0, UPPER.get(unit, math.inf), unit,
-                         "the sweep resolves it")
+    typical = TYPICAL_START.get(key[1], 1.0)
+    if start is not None:
+        value, size = start, (start if key[1] == "value" else max(start, typical))
+    elif stated:
+        value, size = stated, stated
+    else:
+        # A parasitic the fixture does not state starts all but absent (the start is then
+        # the as-measured circuit), free to grow to SPAN times a typical size.
+        value, size = typical * ABSENT_START, typical
+    # Bounded to SPAN times its size: the fit's variables are scaled by the size (not by
+    # a bound decades away, which would leave a nanohenry ESL a rounding error).
+    upper = min(UPPER.get(unit, math.inf), SPAN * float(size))
+    return FreeParameter(key, float(value), 0.0, upper, unit, "the sweep resolves it")
 
 
 def sweep_ladder(fixture: Fixture, setting: SweptSetting,
