@@ -242,3 +242,32 @@ def test_a_missing_ngspice_skips_the_ac_leg_once_and_says_so(tmp_path: Path, mon
     lumped = next(o for o in result.outcomes if o.name == "lumped")
     assert lumped.ngspice is None and lumped.exact is not None
     assert result.best is not None  # the exact leg and the ranking are still there
+
+
+@pytest.mark.ngspice
+@pytest.mark.parametrize("example, table", [
+    ("lc_filter_damped_step.toml", '[swept]\nmeasures = "transfer"\nsource = "V1"\n'),
+    ("film_ringdown.toml", '[swept]\nmeasures = "impedance"\nacross = "SW1"\n'),
+])
+def test_a_sweep_made_by_ngspice_from_the_stated_values_ranks_them_first(example, table) -> None:
+    # The measurement is ngspice's own .ac analysis of the as-measured circuit (a
+    # reference outside the exact engine), with 1 % seeded noise: the candidate holding
+    # exactly those values must rank first, and the lumped rung (which contains them)
+    # may not beat it (it only pays BIC's penalty for its extra values).
+    from xcheck.engines.ac_deck import AcSweep, simulate_ac_ngspice
+    from xcheck.engines.swept import swept_engine
+    from xcheck.fitting.candidates import default_ladder
+
+    root = Path(__file__).resolve().parents[1] / "examples"
+    fixture = parse_fixture_text((root / example).read_text(encoding="utf-8") + "\n" + table,
+                                 example)
+    stated = next(c for c in default_ladder(fixture) if c.name == "as-measured")
+    plot = simulate_ac_ngspice(swept_engine(fixture, stated.parameters, fixture.swept),
+                               AcSweep(10, 100.0, 1e7))
+    quantity = fixture.swept.measures
+    sweep = FrequencySweep(plot.frequency, _noisy(plot.response, 0.01, seed=4), quantity,
+                           "ohm" if quantity == "impedance" else "V/V", "made-by-ngspice.csv")
+    result = run_frequency_comparison(fixture, sweep, use_ngspice=False)
+    assert result.ranking[0].name == "as-measured"
+    lumped = next(r for r in result.ranking if r.name == "lumped")
+    assert lumped.delta_bic > 0
