@@ -292,6 +292,16 @@ def test_compare_reports_the_candidate_ngspice_could_not_run(tmp_path, monkeypat
         # Engines agree to about 1e-4 of the amplitude; 1e-3 is the flagging limit.
         assert outcome.engine_disagreement < 1e-3
     assert result.ngspice_version.startswith("ngspice-")
+    # The report and summary.json carry the failing candidate's note with ngspice's words.
+    from xcheck.report.markdown import markdown
+    from xcheck.report.summary import summary
+
+    data = summary(result)
+    row = next(c for c in data["candidates"] if c["name"] == bad.name)
+    assert f"ngspice: {bad.ngspice_error}" in row["engine_notes"]
+    assert all(not c["engine_notes"] for c in data["candidates"] if c["name"] != bad.name)
+    text = markdown(result, data)
+    assert "Engine notes:" in text and "Timestep too small" in text
 
 
 # --------------------------------------------------------------------------------------

@@ -102,6 +102,14 @@ def markdown(comparison: Comparison, data: dict[str, Any]) -> str:
             f"{_eng(item['series_resistance_ohm'], 'ohm')} | {_eng(item['damped_frequency_hz'], 'Hz')} | "
             f"{_num(item['neper_frequency_per_s'])} /s | {_pct(item['engine_disagreement'])} | {status} |"
         )
+    # Per-candidate remarks on the engines (a deck ngspice rejected, a run retried); a
+    # leg skipped for every candidate is said once, in the verdict, not here.
+    noted = [(item["name"], note) for item in data["candidates"]
+             for note in item.get("engine_notes", [])
+             if not note.startswith("ngspice leg skipped")]
+    if noted:
+        lines += ["", "Engine notes:", ""]
+        lines += [f"- {md(name)}: {md(note)}" for name, note in noted]
     lines += ["", "Evidence words follow Kass & Raftery (1995), ΔBIC read as 2 ln B: < 2 not "
               "distinguishable (their words: not worth more than a bare mention), 2–6 positive, "
               "6–10 strong, > 10 very strong. AIC and BIC use the effective sample count "

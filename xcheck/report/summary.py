@@ -18,6 +18,8 @@
   ``damped_frequency_hz``, ``neper_frequency_per_s``, ``engines`` {theory, ngspice: {rmse,
   nrmse, max_error, aic, bic, damped_frequency_error_hz, neper_frequency_error_per_s} or
   null}, ``engine_disagreement`` (max |ngspice - theory| / amplitude),
+  ``engine_notes`` (list of plain-words remarks on the engines' runs: ngspice skipped or
+  failed, with its own message; a run retried after its process died),
   ``undetermined`` (list of {members, combination, value, stderr, unit, reason}),
   ``modes`` (list, largest share first, of {frequency_hz, neper_frequency_per_s,
   damping_ratio, share, made_by}: the fitted circuit's natural modes from the exact
@@ -150,6 +152,7 @@ def _candidate_json(outcome: CandidateOutcome) -> dict[str, Any]:
         ],
         "engines": {"theory": _engine_json(outcome.theory), "ngspice": _engine_json(outcome.ngspice)},
         "engine_disagreement": _finite(outcome.engine_disagreement),
+        "engine_notes": list(outcome.engine_notes),
         "undetermined": [
             {
                 "members": list(d.members),
