@@ -53,8 +53,12 @@ TYPICAL_START: dict[str, float] = {"esr": 0.01, "esl": 5e-9, "dcr": 0.05,
                                    "resistance": 0.01}
 #: A free value may grow to this many times its stated or typical size.
 SPAN = 1e3
-#: Where a parasitic the fixture leaves out starts, as a fraction of its typical size.
-ABSENT_START = 1e-3
+#: Where a parasitic the fixture leaves out starts, as a fraction of its typical size:
+#: small enough that the start is the as-measured circuit to about 1e-5 of any response
+#: (a thousandth was not: 5 pH of ESL moved a 30 mOhm ESR branch by 1 % at 10 MHz).
+ABSENT_START = 1e-6
+#: Where a frequency law's coefficient starts (the lumped circuit, to the same degree).
+LAW_START = 1e-9
 #: Largest value a free parasitic may take, by unit (far beyond any bench part).
 UPPER: dict[str, float] = {"ohm": 1e6, "H": 10.0, "F": 1.0}
 
@@ -145,10 +149,10 @@ def sweep_ladder(fixture: Fixture, setting: SweptSetting,
         words = describe_key(fixture, item.key)
         for law, label, extra in (
             (skin_law(part, role), f"skin-{part}-{role}",
-             (FreeParameter((part, "skin"), 1e-6, 0.0, 1.0, "ohm/sqrt(Hz)",
+             (FreeParameter((part, "skin"), LAW_START, 0.0, 1.0, "ohm/sqrt(Hz)",
                             "a loss that grows as sqrt(f)"),)),
             (power_law(part, role, reference), f"power-{part}-{role}",
-             (FreeParameter((part, "loss_coefficient"), 0.01, 0.0, UPPER["ohm"], "ohm",
+             (FreeParameter((part, "loss_coefficient"), LAW_START, 0.0, 1e3, "ohm",
                             "a loss that grows as a fitted power of f"),
               FreeParameter((part, "loss_exponent"), 0.5, 0.0, 3.0, "1",
                             "a loss that grows as a fitted power of f"))),
@@ -162,7 +166,7 @@ def sweep_ladder(fixture: Fixture, setting: SweptSetting,
             label = f"loss-tangent-{part}"
             candidates.append(Candidate(
                 label, f"lumped, with a constant dielectric loss tangent of {part}", measured,
-                lumped.free + (FreeParameter((part, "loss_tangent"), 1e-3, 0.0, 1.0, "1",
+                lumped.free + (FreeParameter((part, "loss_tangent"), LAW_START, 0.0, 1.0, "1",
                                              "a constant dissipation factor"),)))
             laws[label] = (loss_tangent_law(part),)
     return candidates, laws
