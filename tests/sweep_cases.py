@@ -35,3 +35,23 @@ def log_grid(start: float, stop: float, per_decade: int) -> np.ndarray:
     """Log-spaced frequencies, ``per_decade`` points a decade."""
     decades = math.log10(stop / start)
     return np.logspace(math.log10(start), math.log10(stop), int(round(decades * per_decade)) + 1)
+
+
+def swept_capacitor_fixture(title: str, nominal: str, *, esl_unknown: bool = True) -> str:
+    """An invented capacitor discharged round a 1 ohm loop and swept on its own (its
+    ``[swept]`` table: the impedance of C1 alone), its ESR (and ESL) written ``"?"``."""
+    esl = 'esl = "?"\n' if esl_unknown else ""
+    return (
+        f'title = "{title}"\nresponse = "natural"\nloop = ["SW1", "C1", "R1"]\n'
+        'probe = "C1"\n[parts.SW1]\nkind = "switch"\n[parts.C1]\nkind = "capacitor"\n'
+        f'nominal = "{nominal}"\nesr = "?"\n{esl}initial = "5"\n[parts.R1]\n'
+        'kind = "resistor"\nnominal = "1"\n[swept]\nmeasures = "impedance"\npart = "C1"\n'
+    )
+
+
+def noisy(z: np.ndarray, relative: float, seed: int) -> np.ndarray:
+    """``z`` times a seeded log-normal error: ``relative`` standard deviation in the
+    log-magnitude and the same in the phase (rad)."""
+    rng = np.random.default_rng(seed)
+    return z * np.exp(relative * rng.standard_normal(z.size)
+                      + 1j * relative * rng.standard_normal(z.size))

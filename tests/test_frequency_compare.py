@@ -20,6 +20,7 @@ import numpy as np
 import pytest
 from scipy import signal
 
+from sweep_cases import noisy, swept_capacitor_fixture
 from xcheck.capture.sweep_types import FrequencySweep
 from xcheck.demo.synth import write_capture_csv
 from xcheck.errors import XcheckError
@@ -28,26 +29,8 @@ from xcheck.frequency_compare import run_frequency_comparison
 from xcheck.measured import measure
 
 #: An invented electrolytic measured alone on an impedance analyser.
-CAPACITOR = '''
-title = "Electrolytic capacitor on an impedance analyser (invented example)"
-response = "natural"
-loop = ["SW1", "C1", "R1"]
-probe = "C1"
-[parts.SW1]
-kind = "switch"
-[parts.C1]
-kind = "capacitor"
-nominal = "100u"
-esr = "?"
-esl = "?"
-initial = "5"
-[parts.R1]
-kind = "resistor"
-nominal = "1"
-[swept]
-measures = "impedance"
-part = "C1"
-'''
+CAPACITOR = swept_capacitor_fixture(
+    "Electrolytic capacitor on an impedance analyser (invented example)", "100u")
 
 #: An invented film capacitor rung down through a choke whose winding resistance is
 #: unknown, the capacitor also swept alone.
@@ -73,12 +56,6 @@ part = "C1"
 '''
 
 
-def _noisy(z: np.ndarray, relative: float, seed: int) -> np.ndarray:
-    rng = np.random.default_rng(seed)
-    return z * np.exp(relative * rng.standard_normal(z.size)
-                      + 1j * relative * rng.standard_normal(z.size))
-
-
 def _fitted(outcome) -> dict[str, tuple[float, float]]:
     return {v.label: (v.value, v.stderr) for v in outcome.fit.fitted}
 
@@ -94,7 +71,7 @@ def test_a_capacitors_esl_esr_and_skin_effect_are_recovered() -> None:
     f = np.geomspace(100.0, 10e6, 120)
     w = 2 * math.pi * f
     z = r0 + k * np.sqrt(f) + 1j * w * l + 1 / (1j * w * c)
-    sweep = FrequencySweep(f, _noisy(z, 0.005, seed=11), "impedance", "ohm", "cap.csv",
+    sweep = FrequencySweep(f, noisy(z, 0.005, seed=11), "impedance", "ohm", "cap.csv",
                            relative_error=0.005, phase_error=0.005)
     fixture = parse_fixture_text(CAPACITOR, "cap.toml")
     result = run_frequency_comparison(fixture, sweep)
@@ -129,7 +106,7 @@ def test_stated_errors_are_used_and_unstated_ones_are_said() -> None:
     c, r0 = 100e-6, 0.05
     f = np.geomspace(100.0, 1e6, 60)
     z = r0 + 1 / (1j * 2 * math.pi * f * c)
-    sweep = FrequencySweep(f, _noisy(z, 0.01, seed=3), "impedance", "ohm", "cap.csv")
+    sweep = FrequencySweep(f, noisy(z, 0.01, seed=3), "impedance", "ohm", "cap.csv")
     fixture = parse_fixture_text(CAPACITOR, "cap.toml")
     result = run_frequency_comparison(fixture, sweep, use_ngspice=False)
     assert any("states no standard errors" in n for n in result.notes)
@@ -170,7 +147,7 @@ def test_a_joint_fit_splits_the_esr_from_the_winding_resistance(tmp_path: Path) 
     timed = measured.observation(max_points=20_000)
     f = np.geomspace(100.0, 1e6, 80)
     z = esr + 1 / (1j * 2 * math.pi * f * c)
-    sweep = FrequencySweep(f, _noisy(z, 0.005, seed=8), "impedance", "ohm", "c1.csv",
+    sweep = FrequencySweep(f, noisy(z, 0.005, seed=8), "impedance", "ohm", "c1.csv",
                            relative_error=0.005, phase_error=0.005)
     joint = run_frequency_comparison(fixture, sweep, timed=timed, use_ngspice=False)
     assert joint.joint
@@ -203,7 +180,7 @@ def test_the_joint_fit_from_the_command_line(tmp_path: Path) -> None:
     fixture.write_text(JIG, encoding="utf-8")
     trace = _ring_down(tmp_path / "ring.csv", esr + dcr, esr, c, l, 10.0)
     f = np.geomspace(100.0, 1e6, 60)
-    z = _noisy(esr + 1 / (1j * 2 * math.pi * f * c), 0.005, seed=2)
+    z = noisy(esr + 1 / (1j * 2 * math.pi * f * c), 0.005, seed=2)
     rows = [f"{a:.9e},{b.real:.9e},{b.imag:.9e}" for a, b in zip(f, z)]
     sweep = tmp_path / "c1.csv"
     sweep.write_text("freq (Hz),Re (ohm),Im (ohm)\n" + "\n".join(rows) + "\n", encoding="ascii")
@@ -265,7 +242,7 @@ def test_a_sweep_made_by_ngspice_from_the_stated_values_ranks_them_first(example
     plot = simulate_ac_ngspice(swept_engine(fixture, stated.parameters, fixture.swept),
                                AcSweep(10, 100.0, 1e7))
     quantity = fixture.swept.measures
-    sweep = FrequencySweep(plot.frequency, _noisy(plot.response, 0.01, seed=4), quantity,
+    sweep = FrequencySweep(plot.frequency, noisy(plot.response, 0.01, seed=4), quantity,
                            "ohm" if quantity == "impedance" else "V/V", "made-by-ngspice.csv")
     result = run_frequency_comparison(fixture, sweep, use_ngspice=False)
     assert result.ranking[0].name == "as-measured"

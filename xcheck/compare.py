@@ -26,7 +26,7 @@ from xcheck.fitting.candidates import (
 from xcheck.circuit.expand import build_circuit
 from xcheck.engines.exact import ExactEngine, dominant_ring
 from xcheck.engines.modes import natural_modes_named
-from xcheck.engines.ngspice import INSTALL_WAYS, NgspiceUnavailable, ngspice_version
+from xcheck.engines.ngspice import INSTALL_WAYS, NgspiceUnavailable, ngspice_status
 from xcheck.engines.theory import TheoryNotApplicable, characterise
 from xcheck.errors import SimulationError, XcheckError
 from xcheck.fitting.next_measurement import next_measurements
@@ -117,7 +117,7 @@ def run_comparison(
     version, skipped = "", None
     if use_ngspice:
         say("starting ngspice")
-        version, skipped = _ngspice_status()
+        version, skipped = ngspice_status()
     for index, (candidate, fit) in enumerate(zip(candidates, fits), 1):
         if use_ngspice and skipped is None and not fit.failed:
             say(f"ngspice run {index}/{len(candidates)}: {candidate.name}")
@@ -165,17 +165,6 @@ def _structural_rungs(fixture: Fixture, candidates: list[Candidate], fits: list[
     inductances = [e.value for e in circuit.elements if e.kind == "L"]
     capacitances = [e.value for e in circuit.elements if e.kind == "C"]
     return structural_rungs(fixture, base, fit.parameters, mode, (inductances, capacitances))
-
-
-def _ngspice_status() -> tuple[str, NgspiceUnavailable | None]:
-    """ngspice's version and None, or ``("unavailable", why)`` when it cannot be started
-    (checked once, so a missing library costs one child start, not one per candidate)."""
-    try:
-        return ngspice_version(), None
-    except NgspiceUnavailable as exc:
-        return "unavailable", exc
-    except (XcheckError, ImportError, OSError) as exc:
-        return "unavailable", NgspiceUnavailable(str(exc))
 
 
 def _evaluate(

@@ -21,12 +21,12 @@ import numpy as np
 
 from xcheck.capture.resonance import Resonance, find_resonances
 from xcheck.capture.sweep_types import FrequencySweep
-from xcheck.engines.ngspice import NgspiceUnavailable
-from xcheck.engines.swept import paired_response, swept_engine
+from xcheck.engines.ngspice import ngspice_status
+from xcheck.engines.swept import swept_engine
 from xcheck.errors import SimulationError, XcheckError
 from xcheck.fitting.candidates import Candidate
 from xcheck.fitting.fit import FitResult, fit_candidate
-from xcheck.fitting.frequency_laws import FrequencyLaw, law_keys
+from xcheck.fitting.frequency_laws import FrequencyLaw, apply_laws, law_keys
 from xcheck.fitting.rank import Ranked, rank_by_bic
 from xcheck.fitting.sweep_candidates import sweep_ladder
 from xcheck.fitting.sweep_observation import JointObservation, SweepObservation, log_ratio
@@ -102,6 +102,8 @@ class FrequencyComparison:
         True when the candidates were fitted to a time capture as well.
     notes
         Plain-words remarks (errors assumed, legs skipped).
+    ngspice_version
+        The ngspice that ran the ``.ac`` legs, or "" when none ran.
     """
 
     fixture: Fixture
@@ -111,6 +113,7 @@ class FrequencyComparison:
     resonances: tuple[Resonance, ...]
     joint: bool = False
     notes: tuple[str, ...] = field(default=())
+    ngspice_version: str = ""
 
     @property
     def best(self) -> SweepOutcome | None:
@@ -130,22 +133,16 @@ def _resonances(frequency: np.ndarray, values: np.ndarray) -> tuple[Resonance, .
 
 
 def _evaluate(fixture: Fixture, obs: SweepObservation, candidate: Candidate,
-              laws: tuple[FrequencyLaw, ...], fit: FitResult, use_ngspice: bool) -> SweepOutcome:
-    """The fitted candidate on both engines."""
+              laws: tuple[FrequencyLaw, ...], fit: FitResult, use_ngspice: bool,
+              off_note: str = NOT_ASKED) -> SweepOutcome:
+    """The fitted candidate on both engines (``off_note``: why ngspice is not run when
+    ``use_ngspice`` is False)."""
     if fit.failed or fit.parameters is None:
         return SweepOutcome(candidate, laws, fit, ngspice_note="the fit failed")
     f = obs.frequency
     parameters = fit.parameters
     engine = swept_engine(fixture, parameters.without(law_keys(laws)), obs.setting)
-    if laws:
-        values = np.repeat(engine.defaults(1), f.size, axis=0)
-        names = [engine.swept.element(n) for n in engine.names]
-        for law in laws:
-            cols = [k for k, e in enumerate(names) if (e.part, e.role) == law.target]
-            values[:, cols] += law.added(f, parameters.values)[:, None]
-        exact = paired_response(engine, values, f)
-    else:
-        exact = engine.response(f)[0]
+    exact = apply_laws(engine, engine.defaults(1), laws, f, parameters.values)
     error = log_ratio(exact, np.asarray(obs.sweep.value, complex))
     rms = float(np.sqrt(np.mean(np.abs(error) ** 2)))
     resonances = _resonances(f, exact)
@@ -156,14 +153,12 @@ def _evaluate(fixture: Fixture, obs: SweepObservation, candidate: Candidate,
                                          "element, so ngspice's .ac leg is skipped")
     if not use_ngspice:
         return SweepOutcome(candidate, laws, fit, exact, resonances=resonances,
-                            rms_log_error=rms, ngspice_note=NOT_ASKED)
+                            rms_log_error=rms, ngspice_note=off_note)
     from xcheck.engines.ac_deck import AcSweep, simulate_ac_ngspice
 
     try:
         plot = simulate_ac_ngspice(engine, AcSweep(AC_POINTS_PER_DECADE, float(f[0]),
                                                    float(f[-1])))
-    except NgspiceUnavailable:
-        raise  # the caller skips the leg for every candidate, saying so once
     except (SimulationError, XcheckError) as exc:
         return SweepOutcome(candidate, laws, fit, exact, resonances=resonances,
                             rms_log_error=rms, ngspice_note=f"ngspice's .ac run failed: {exc}")
@@ -220,34 +215,32 @@ def run_frequency_comparison(fixture: Fixture, sweep: FrequencySweep, *,
             "the sweep states no standard errors: each point weighs as if its magnitude "
             "and phase were known to the same relative error, and the noise level is "
             "estimated from the residuals")
+    version, off_note = "", NOT_ASKED
+    if use_ngspice:
+        version, unavailable = ngspice_status()
+        if unavailable is not None:  # checked once: one child start, not one a candidate
+            use_ngspice = False
+            off_note = "ngspice could not be started (see the notes)"
+            notes.append(f"ngspice's .ac leg was skipped for every candidate: {unavailable}")
     outcomes = []
-    unavailable = False
     bics: dict[str, float] = {}
     for number, candidate in enumerate(candidates, 1):
         if progress is not None:
             progress(f"fitting candidate {number}/{len(candidates)}: {candidate.name}")
         obs = base.with_laws(laws[candidate.name])
         fitted_to = JointObservation.of(timed, obs) if timed is not None else obs
-        skip = _power_law_not_needed(candidate.name, bics)
+        skip = _power_law_not_needed(laws[candidate.name], laws, bics)
         fit = (FitResult(candidate.name, False, skip) if skip
                else fit_candidate(fixture, candidate, fitted_to))
         bics[candidate.name] = fit.bic if not fit.failed else math.inf
-        try:
-            outcome = _evaluate(fixture, obs, candidate, laws[candidate.name], fit,
-                                use_ngspice and not unavailable)
-        except NgspiceUnavailable as exc:
-            unavailable = True
-            notes.append(f"ngspice's .ac leg was skipped for every candidate: {exc}")
-            outcome = _evaluate(fixture, obs, candidate, laws[candidate.name], fit, False)
-        if unavailable and outcome.ngspice_note == NOT_ASKED:
-            outcome = replace(outcome, ngspice_note="ngspice could not be started (see the "
-                                                    "notes)")
-        outcomes.append(outcome)
+        outcomes.append(_evaluate(fixture, obs, candidate, laws[candidate.name], fit,
+                                  use_ngspice, off_note))
     ranking = rank_by_bic([o.name for o in outcomes], [o.fit.bic for o in outcomes],
                           [o.fit.failed for o in outcomes])
     return FrequencyComparison(fixture, sweep, tuple(outcomes), tuple(ranking),
                                _resonances(base.frequency, np.asarray(sweep.value, complex)),
-                               joint=timed is not None, notes=tuple(notes))
+                               joint=timed is not None, notes=tuple(notes),
+                               ngspice_version=version if use_ngspice else "")
 
 
 #: A fitted power of frequency is tried only where the square-root law already beats the
@@ -257,13 +250,18 @@ def run_frequency_comparison(fixture: Fixture, sweep: FrequencySweep, *,
 POWER_LAW_NEEDS = 2.0
 
 
-def _power_law_not_needed(name: str, bics: dict[str, float]) -> str:
-    """Why the power-law rung ``name`` is not fitted ("" when it is)."""
-    if not name.startswith("power-"):
+def _power_law_not_needed(own: tuple[FrequencyLaw, ...],
+                          laws: dict[str, tuple[FrequencyLaw, ...]],
+                          bics: dict[str, float]) -> str:
+    """Why a rung with laws ``own`` is not fitted ("" when it is): a power law whose
+    target's square-root rung (the candidate whose one law is skin effect on the same
+    resistance, fitted before it) does not beat ``lumped`` by :data:`POWER_LAW_NEEDS`."""
+    if len(own) != 1 or own[0].kind != "power":
         return ""
-    skin = bics.get("skin-" + name[len("power-"):], math.inf)
-    lumped = bics.get("lumped", math.inf)
-    if skin < lumped - POWER_LAW_NEEDS:
+    skin = min((bics.get(name, math.inf) for name, found in laws.items()
+                if len(found) == 1 and found[0].kind == "skin"
+                and found[0].target == own[0].target), default=math.inf)
+    if skin < bics.get("lumped", math.inf) - POWER_LAW_NEEDS:
         return ""
     return ("not fitted: the skin-effect rung does not beat the lumped model, so no loss "
             "grows with frequency for a power of it to describe")
@@ -274,8 +272,6 @@ def _with_time_unknowns(fixture: Fixture, candidates: list[Candidate]) -> list[C
     value of the time ladder) free as well: a joint fit moves what either measurement
     sees. The loop's lumped extra loss is left out: it would only repeat a ``"?"``
     resistance in the time capture and is nowhere in a part's sweep."""
-    from dataclasses import replace
-
     from xcheck.fitting.candidates import default_ladder
 
     time_ladder = {c.name: c for c in default_ladder(fixture)}

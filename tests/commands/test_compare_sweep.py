@@ -16,34 +16,16 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+from sweep_cases import series_rlc, swept_capacitor_fixture
 from xcheck.cli import main
 
-FIXTURE = '''
-title = "Film capacitor swept on an impedance analyser (invented example)"
-response = "natural"
-loop = ["SW1", "C1", "R1"]
-probe = "C1"
-[parts.SW1]
-kind = "switch"
-[parts.C1]
-kind = "capacitor"
-nominal = "1u"
-esr = "?"
-esl = "?"
-initial = "5"
-[parts.R1]
-kind = "resistor"
-nominal = "1"
-[swept]
-measures = "impedance"
-part = "C1"
-'''
+FIXTURE = swept_capacitor_fixture(
+    "Film capacitor swept on an impedance analyser (invented example)", "1u")
 C, R, L = 1e-6, 0.02, 8e-9
 
 
 def _impedance(f: np.ndarray) -> np.ndarray:
-    w = 2 * math.pi * f
-    return R + 1j * w * L + 1 / (1j * w * C)
+    return series_rlc(f, R, L, C)
 
 
 def _fixture(tmp_path: Path, text: str = FIXTURE) -> Path:

@@ -13,38 +13,21 @@ from pathlib import Path
 
 import numpy as np
 
+from sweep_cases import noisy, swept_capacitor_fixture
 from xcheck.capture.sweep_types import FrequencySweep
 from xcheck.fixture.reader import parse_fixture_text
 from xcheck.frequency_compare import run_frequency_comparison
 from xcheck.report.frequency_report import write_frequency_report
 
-FIXTURE = '''
-title = "Bench capacitor <img src=x onerror=alert(1)> [link](http://example.invalid) (invented)"
-response = "natural"
-loop = ["SW1", "C1", "R1"]
-probe = "C1"
-[parts.SW1]
-kind = "switch"
-[parts.C1]
-kind = "capacitor"
-nominal = "10u"
-esr = "?"
-initial = "5"
-[parts.R1]
-kind = "resistor"
-nominal = "1"
-[swept]
-measures = "impedance"
-part = "C1"
-'''
+FIXTURE = swept_capacitor_fixture(
+    "Bench capacitor <img src=x onerror=alert(1)> [link](http://example.invalid) (invented)",
+    "10u", esl_unknown=False)
 
 
 def test_the_folder_names_the_best_candidate_and_escapes_user_text(tmp_path: Path) -> None:
     f = np.geomspace(100.0, 1e6, 50)
     z = 0.03 + 1 / (1j * 2 * math.pi * f * 10e-6)
-    rng = np.random.default_rng(5)
-    noisy = z * np.exp(0.002 * rng.standard_normal(f.size) + 0.002j * rng.standard_normal(f.size))
-    sweep = FrequencySweep(f, noisy, "impedance", "ohm", "c1.csv", relative_error=0.002,
+    sweep = FrequencySweep(f, noisy(z, 0.002, seed=5), "impedance", "ohm", "c1.csv", relative_error=0.002,
                            phase_error=0.002)
     fixture = parse_fixture_text(FIXTURE, "cap.toml")
     comparison = run_frequency_comparison(fixture, sweep, use_ngspice=False)

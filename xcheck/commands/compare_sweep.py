@@ -14,7 +14,6 @@ import math
 from pathlib import Path
 from typing import Callable
 
-from xcheck.errors import XcheckError
 
 
 def run_sweep(args: argparse.Namespace, fixture, out: Path, say: Callable[[str], None],
@@ -55,17 +54,9 @@ def run_sweep(args: argparse.Namespace, fixture, out: Path, say: Callable[[str],
                        display_path(capture), sha256_of(capture)))
     comparison = run_frequency_comparison(fixture, sweep, timed=timed,
                                           use_ngspice=not args.no_ngspice, progress=say)
-    version = ""
-    if not args.no_ngspice:
-        from xcheck.engines.ngspice import ngspice_version
-
-        try:
-            version = ngspice_version()
-        except XcheckError:
-            version = ""
     say("writing the report")
     with replacing_anyway(out, getattr(args, "force", False)):
-        folder = write_frequency_report(comparison, out, inputs=inputs, ngspice_version=version)
+        folder = write_frequency_report(comparison, out, inputs=inputs)
     from xcheck.report.frequency_report import frequency_verdict
 
     print(frequency_verdict(comparison))

@@ -360,7 +360,13 @@ class FrequencyEngine:
             the driven current is exactly zero, is ``inf``).
         """
         a, b, c, d = self.matrices(values)
-        h = response_matrix(a, b[..., 0], c[:, 0, :], d[:, 0, 0], frequencies)
+        return self.from_matrices(response_matrix(a, b[..., 0], c[:, 0, :], d[:, 0, 0],
+                                                  frequencies))
+
+    def from_matrices(self, h: np.ndarray) -> np.ndarray:
+        """The response from the transfer function of :meth:`matrices`: ``h`` itself,
+        or its reciprocal when :attr:`output` is ``"admittance"`` (``inf`` where the
+        driven current is exactly zero)."""
         if self.output == "admittance":
             with np.errstate(divide="ignore", invalid="ignore"):
                 return np.where(h == 0, np.inf + 0j, 1 / np.where(h == 0, 1, h))

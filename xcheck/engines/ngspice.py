@@ -59,7 +59,7 @@ from typing import Any
 import numpy as np
 
 from xcheck.circuit.model import Circuit
-from xcheck.errors import SimulationError
+from xcheck.errors import SimulationError, XcheckError
 from xcheck.engines.waveform import Waveform
 
 #: The ways to install the shared library (a clause, no capital, no full stop).
@@ -933,6 +933,20 @@ def simulate_ngspice(
         *waveform.notes,
     )
     return Waveform(waveform.time, waveform.probe_voltage, waveform.loop_current, "ngspice", notes)
+
+
+def ngspice_status() -> tuple[str, NgspiceUnavailable | None]:
+    """ngspice's version and None, or ``("unavailable", why)`` when it cannot be started.
+
+    A comparison checks this once, so a missing library costs one child start, not one
+    per candidate.
+    """
+    try:
+        return ngspice_version(), None
+    except NgspiceUnavailable as exc:
+        return "unavailable", exc
+    except (XcheckError, ImportError, OSError) as exc:
+        return "unavailable", NgspiceUnavailable(str(exc))
 
 
 def ngspice_version() -> str:

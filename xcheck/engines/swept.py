@@ -145,7 +145,4 @@ def paired_response(engine: FrequencyEngine, values: np.ndarray,
             h = np.array([response_matrix(a[k:k + 1], b[k:k + 1, :, 0], c[k:k + 1, 0, :],
                                           d[k:k + 1, 0, 0], f[k:k + 1])[0, 0]
                           for k in range(f.size)])
-    if engine.output == "admittance":
-        with np.errstate(divide="ignore", invalid="ignore"):
-            return np.where(h == 0, np.inf + 0j, 1 / np.where(h == 0, 1, h))
-    return h
+    return engine.from_matrices(h)

@@ -20,7 +20,7 @@ coefficients a fit may move:
 The coefficient keys are ``(part, "skin")``, ``(part, "loss_coefficient")`` with
 ``(part, "loss_exponent")``, and ``(part, "loss_tangent")``: fit values, not fixture
 fields, so a circuit is always built without them and the law applied afterwards to the
-element values (:func:`apply_laws`).
+element values (:func:`apply_laws`, the response of a frequency engine with them).
 """
 
 from __future__ import annotations
@@ -32,6 +32,8 @@ from typing import Literal, Mapping, Sequence
 import numpy as np
 
 from xcheck.circuit.parameters import ParameterKey
+from xcheck.engines.frequency import FrequencyEngine
+from xcheck.engines.swept import paired_response
 
 LawKind = Literal["skin", "power", "loss_tangent"]
 
@@ -116,3 +118,44 @@ def loss_tangent_law(part: str) -> FrequencyLaw:
     """A constant dielectric loss tangent of capacitor ``part``, added to its ESR."""
     return FrequencyLaw("loss_tangent", (part, "esr"), (part, "loss_tangent"),
                         capacitance=(part, "value"))
+
+
+def element_keys(engine: FrequencyEngine) -> list[ParameterKey]:
+    """The (part, role) of each column of ``engine``'s element values."""
+    return [(e.part, e.role) for e in (engine.swept.element(n) for n in engine.names)]
+
+
+def apply_laws(engine: FrequencyEngine, values: np.ndarray, laws: Sequence[FrequencyLaw],
+               frequencies: np.ndarray, looked_up: Mapping[ParameterKey, float],
+               keys: Sequence[ParameterKey] | None = None) -> np.ndarray:
+    """``engine``'s response at ``frequencies`` with each law's loss added to its target.
+
+    Parameters
+    ----------
+    engine
+        The frequency engine of the measured circuit.
+    values
+        ``(1, n_elements)`` element values (SI).
+    laws
+        The frequency-dependent losses; none gives the plain response.
+    frequencies
+        Hz.
+    looked_up
+        The law coefficients and capacitances by key (a parameter set's values).
+    keys
+        :func:`element_keys` of ``engine`` when already known (a fit's hot path).
+
+    Returns
+    -------
+    numpy.ndarray
+        The complex response, one value a frequency.
+    """
+    f = np.asarray(frequencies, dtype=float)
+    if not laws:
+        return engine.response(f, values)[0]
+    keys = element_keys(engine) if keys is None else keys
+    rows = np.repeat(np.atleast_2d(values), f.size, axis=0)
+    for law in laws:
+        cols = [k for k, key in enumerate(keys) if key == law.target]
+        rows[:, cols] += law.added(f, looked_up)[:, None]
+    return paired_response(engine, rows, f)

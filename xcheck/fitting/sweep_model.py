@@ -18,9 +18,9 @@ import numpy as np
 
 from xcheck.circuit.parameters import ParameterKey, ParameterSet
 from xcheck.engines.frequency import FrequencyEngine
-from xcheck.engines.swept import paired_response, swept_engine
+from xcheck.engines.swept import swept_engine
 from xcheck.fitting.candidates import Candidate, FreeParameter
-from xcheck.fitting.frequency_laws import FrequencyLaw, law_keys
+from xcheck.fitting.frequency_laws import FrequencyLaw, apply_laws, element_keys, law_keys
 from xcheck.fitting.model import _placeholder
 from xcheck.fixture.model import Fixture
 from xcheck.fixture.swept_table import SweptSetting
@@ -59,7 +59,7 @@ class SweepModel:
         base = np.array([_placeholder(f) for f in free], float)
         self.engine: FrequencyEngine = swept_engine(fixture, self._circuit_parameters(base),
                                                     setting)
-        keys = [self._key_of(name) for name in self.engine.names]
+        keys = element_keys(self.engine)
         self._keys = keys
         self._columns = [[k for k, key in enumerate(keys) if key == f.key] for f in free]
         self._values = self.engine.defaults(1)
@@ -68,10 +68,6 @@ class SweepModel:
             raise ValueError(
                 f"a frequency-dependent loss needs the element {missing[0]} in the "
                 "measured circuit; make that value free or give it a value")
-
-    def _key_of(self, name: str) -> ParameterKey:
-        element = self.engine.swept.element(name)
-        return element.part, element.role
 
     def parameters(self, physical: np.ndarray) -> ParameterSet:
         """The candidate's parameter set with ``physical`` free values (law
@@ -106,12 +102,5 @@ class SweepModel:
         """Complex response at ``frequencies`` (Hz) for ``physical`` free values."""
         self.evaluations += 1
         values = self._element_values(np.asarray(physical, float))
-        f = np.asarray(frequencies, float)
-        if not self.laws:
-            return self.engine.response(f, values)[0]
-        looked_up = self.parameters(physical).values
-        rows = np.repeat(values, f.size, axis=0)
-        for law in self.laws:
-            cols = [k for k, key in enumerate(self._keys) if key == law.target]
-            rows[:, cols] += law.added(f, looked_up)[:, None]
-        return paired_response(self.engine, rows, f)
+        looked_up = self.parameters(physical).values if self.laws else {}
+        return apply_laws(self.engine, values, self.laws, frequencies, looked_up, self._keys)

@@ -25,7 +25,7 @@ ring-down estimate measured (:meth:`JointModel.time_values`).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import ClassVar, Sequence
 
 import numpy as np
@@ -99,8 +99,7 @@ class SweepObservation(Observation):
 
     def with_laws(self, laws: Sequence[FrequencyLaw]) -> "SweepObservation":
         """The same sweep, fitted with ``laws``."""
-        return SweepObservation(self.time, self.voltage, self.sigma, self.period,
-                                self.sweep, self.setting, tuple(laws), self.stated)
+        return replace(self, laws=tuple(laws))
 
     @property
     def frequency(self) -> np.ndarray:

@@ -34,17 +34,14 @@ from xcheck.atomic import REPORT_HINT, report_folder_is_ours, write_folder_atomi
 from xcheck.capture.resonance import Resonance
 from xcheck.frequency_compare import FrequencyComparison, SweepOutcome
 from xcheck.report.markdown import escape_markdown
-from xcheck.report.summary import SCHEMA, SCHEMA_VERSION, summary_text
+from xcheck.report.summary import (SCHEMA, SCHEMA_VERSION, _finite, library_versions,
+                                   summary_text)
 from xcheck.safety import CAUTION, assess
 from xcheck.values import format_eng
 
 FIGURE = "bode.png"
 #: Units of the law coefficients (not fixture fields) for the report.
 UNIT_WORDS = {"ohm": "Ω", "H": "H", "F": "F", "1": "", "ohm/sqrt(Hz)": "Ω/√Hz"}
-
-
-def _finite(value: float | None) -> float | None:
-    return float(value) if value is not None and math.isfinite(value) else None
 
 
 def _value(value: float, unit: str) -> str:
@@ -110,13 +107,8 @@ def frequency_verdict(comparison: FrequencyComparison) -> str:
 
 
 def frequency_summary(comparison: FrequencyComparison,
-                      inputs: Sequence[tuple[str, str, str]] = (),
-                      ngspice_version: str = "") -> dict[str, Any]:
+                      inputs: Sequence[tuple[str, str, str]] = ()) -> dict[str, Any]:
     """The JSON data of ``summary.json`` (see the module docstring)."""
-    import platform
-
-    import scipy
-
     sweep = comparison.sweep
     setting = comparison.fixture.swept
     safety = assess(comparison.fixture)
@@ -159,9 +151,7 @@ def frequency_summary(comparison: FrequencyComparison,
             "notes": list(comparison.notes),
         },
         "inputs": [{"role": r, "path": p, "sha256": h} for r, p, h in inputs],
-        "versions": {"xcheck": __version__, "ngspice": ngspice_version or "not used",
-                     "numpy": np.__version__, "scipy": scipy.__version__,
-                     "python": platform.python_version()},
+        "versions": library_versions(comparison.ngspice_version),
         "safety": {"max_volts": _finite(safety.max_volts),
                    "stored_energy_joules": _finite(safety.stored_energy_joules),
                    "hazardous": safety.hazardous},
@@ -225,15 +215,14 @@ def frequency_markdown(comparison: FrequencyComparison, data: dict[str, Any]) ->
 
 
 def write_frequency_report(comparison: FrequencyComparison, folder: str | Path, *,
-                           inputs: Sequence[tuple[str, str, str]] = (),
-                           ngspice_version: str = "") -> Path:
+                           inputs: Sequence[tuple[str, str, str]] = ()) -> Path:
     """Write ``report.md``, ``bode.png`` and ``summary.json`` into ``folder`` atomically
     (replacing only an earlier xcheck report, :func:`xcheck.atomic.write_folder_atomically`)."""
     from xcheck.report.bode_figure import write_bode_figure
     from xcheck.report.markdown import _figure_text
 
     def fill(staging: Path) -> None:
-        data = frequency_summary(comparison, inputs, ngspice_version)
+        data = frequency_summary(comparison, inputs)
         curves = [(_figure_text(o.name), o.exact) for o, r in _ordered(comparison)
                   if o.exact is not None]
         marks = [(_figure_text(f"measured {r.kind}"), r.frequency)

@@ -78,13 +78,13 @@ def _finite(value: Any) -> Any:
     return float(value) if math.isfinite(value) else None
 
 
-def versions(comparison: Comparison) -> dict[str, str]:
-    """Versions of the tool and of the libraries that made the numbers.
+def library_versions(ngspice: str) -> dict[str, str]:
+    """Versions of the tool and of the libraries that make the numbers.
 
     Parameters
     ----------
-    comparison
-        Gives the ngspice version it was run with ("" when ngspice was not used).
+    ngspice
+        The ngspice version that ran ("" when ngspice was not used).
 
     Returns
     -------
@@ -96,11 +96,16 @@ def versions(comparison: Comparison) -> dict[str, str]:
 
     return {
         "xcheck": __version__,
-        "ngspice": comparison.ngspice_version or "not used",
+        "ngspice": ngspice or "not used",
         "numpy": np.__version__,
         "scipy": scipy.__version__,
         "python": platform.python_version(),
     }
+
+
+def versions(comparison: Comparison) -> dict[str, str]:
+    """:func:`library_versions` with the ngspice ``comparison`` ran with."""
+    return library_versions(comparison.ngspice_version)
 
 
 def _engine_json(metrics: EngineMetrics | None) -> dict[str, Any] | None:

@@ -201,13 +201,9 @@ def run_sweep(fixture: Fixture, *, trace: str | Path | None = None,
 
 def _versions(engine: str) -> dict[str, str]:
     """Versions of xcheck, ngspice (when it ran the trials), numpy, scipy and Python."""
-    import platform
+    from xcheck.report.summary import library_versions
 
-    import scipy
-
-    from xcheck import __version__
-
-    ngspice = "not used"
+    ngspice = ""
     if engine == "ngspice":
         from xcheck.engines.ngspice import ngspice_version
 
@@ -215,5 +211,4 @@ def _versions(engine: str) -> dict[str, str]:
             ngspice = ngspice_version()
         except XcheckError:
             ngspice = "unavailable"
-    return {"xcheck": __version__, "ngspice": ngspice, "numpy": np.__version__,
-            "scipy": scipy.__version__, "python": platform.python_version()}
+    return library_versions(ngspice)
