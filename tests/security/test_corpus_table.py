@@ -3,7 +3,9 @@
 The table's numbers follow from the corpus definitions once every case behaves as
 defined, which tests/security/test_corpus.py checks case by case; here the README is
 compared with the table predicted from the definitions, and the script's counting of
-real runs is checked on one case of each category against the same prediction.
+real runs is checked on one case of each category against the same prediction. No
+outside reference applies: the numbers checked are counts of the project's own corpus
+(common practice for generated documentation, no source).
 """
 
 from __future__ import annotations
