@@ -41,12 +41,11 @@ from typing import Literal
 
 import numpy as np
 from scipy.optimize import least_squares, minimize_scalar
-from scipy.stats import norm as normal
-from scipy.stats import t as student_t
 
 from xcheck.errors import TraceError
 from xcheck.capture.clipping import estimate_resolution
 from xcheck.capture.types import MIN_SAMPLES, Trace
+from xcheck.quantiles import normal_sf, student_isf
 
 Expect = Literal["natural", "step"]
 
@@ -172,11 +171,11 @@ def _slope_matters(line: _Line) -> bool:
 def _threshold(count: int) -> float:
     """Multiple of the estimated prediction sd with the same one-sided tail probability
     as ``THRESHOLD_SIGMA`` Gaussian sigmas, allowing for sigma estimated from ``count``
-    samples (Student's t with count - 2 degrees of freedom; scipy.stats.t)."""
+    samples (Student's t with count - 2 degrees of freedom; :mod:`xcheck.quantiles`)."""
     dof = max(count - 2, 1)
     if dof > 1000:
         return THRESHOLD_SIGMA
-    return float(student_t.isf(normal.sf(THRESHOLD_SIGMA), dof))
+    return float(student_isf(normal_sf(THRESHOLD_SIGMA), dof))
 
 
 def _floor(resolution: float | None, v: np.ndarray) -> float:

@@ -2,7 +2,7 @@
 
 The extrema of ``A exp(-alpha t) cos(omega_d t + phi)`` have magnitudes
 ``A (omega_d / omega0) exp(-alpha t)``, so ``log|extremum - offset|`` is a straight line
-in time. A robust fit (Theil-Sen start, scipy.stats.theilslopes; then
+in time. A robust fit (Theil-Sen start, :func:`xcheck.ringdown.robust_line.theil_sen`; then
 scipy.optimize.least_squares with the soft-L1 loss) is not dragged by single bad points;
 each extremum's deviation from it is expressed in standard errors and the ones beyond a
 Bonferroni-style threshold (1 % family-wise, common practice) are flagged. A weighted
@@ -15,11 +15,12 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import stats
 from scipy.optimize import least_squares
 
+from xcheck.quantiles import normal_isf, student_isf
 from xcheck.ringdown.reading_misses import MissTest
 from xcheck.ringdown.result import EnvelopeDiagnostics
+from xcheck.ringdown.robust_line import theil_sen
 from xcheck.values import format_eng
 
 #: Family-wise false-flag probability for the outlier test, and the two-sided level of
@@ -107,7 +108,7 @@ def diagnose_envelope(
         )
     y = np.log(amp)
     tc = t - t.mean()
-    slope0, intercept0, _, _ = stats.theilslopes(y, tc)
+    slope0, intercept0 = theil_sen(y, tc)
     # Errors on the log scale are sigma / amplitude. The amplitude is taken from the
     # robust line, not from each noisy point: weights computed from the points
     # themselves favour the ones noise pushed up and bend the fit at the quiet end.
@@ -131,10 +132,10 @@ def diagnose_envelope(
         z = (amp - np.exp(fit.x[0] + fit.x[1] * tc)) / np.asarray(sigmas, dtype=float)
         if n >= 6:
             z = z / max(1.0, _mad_scale(z))
-        threshold = max(3.0, float(stats.norm.isf(FAMILY_LEVEL / (2 * n))))
+        threshold = max(3.0, float(normal_isf(FAMILY_LEVEL / (2 * n))))
     else:
         z = _deleted_residuals(tc, y, s_y)
-        threshold = max(3.0, float(stats.t.isf(FAMILY_LEVEL / (2 * n), n - 3)))
+        threshold = max(3.0, float(student_isf(FAMILY_LEVEL / (2 * n), n - 3)))
     flagged = [int(i) for i in np.flatnonzero(np.abs(z) > threshold)]
     if misses is not None and len(misses.misses) == n:
         z = np.array([m.deviation for m in misses.misses])
@@ -209,9 +210,9 @@ def _curvature(
     se = math.sqrt(cov[0, 0] * birge)
     t_value = float(coef[0] / se) if se > 0 else 0.0
     if known:
-        critical = float(stats.norm.isf(CURVATURE_LEVEL / 2))
+        critical = float(normal_isf(CURVATURE_LEVEL / 2))
     else:
-        critical = float(stats.t.isf(CURVATURE_LEVEL / 2, dof))
+        critical = float(student_isf(CURVATURE_LEVEL / 2, dof))
     return t_value, abs(t_value) > critical
 
 

@@ -14,6 +14,16 @@
 5. Envelope diagnostics; when isolated extrema are flagged, the fit is repeated without
    the samples around them and both estimates are kept.
 
+A uniformly sampled record far finer than the ringing needs (more than
+:data:`PREAVERAGE_PER_PERIOD` samples per period of the rough frequency, and more than
+:data:`PREAVERAGED_SAMPLES` samples) is first averaged in blocks (:func:`preaverage_block`),
+and the whole chain runs on the block means with the noise scaled by 1/sqrt(block);
+the counts, noise level and residual RMS are then given per sample again. A block of a
+few thousandths of a period changes nothing the estimate can resolve: the mean of
+``exp(s t)`` over a block of length h is ``exp(s t_c)`` times ``1 + (s h)^2 / 24 + ...``
+(the factor :func:`xcheck.ringdown.nls.unblock` divides out), under 1e-6 here; poles,
+and so frequency and decay, are unchanged.
+
 A record whose extrema show too little ringing is handed to
 :func:`xcheck.ringdown.aperiodic.analyse_aperiodic`: when it settles without ringing
 (overdamped, critically damped or first order) its time constants are the estimate
@@ -24,6 +34,7 @@ ringing was found and what helps.
 from __future__ import annotations
 
 import math
+import re
 from collections.abc import Callable
 from dataclasses import dataclass, replace
 
@@ -73,6 +84,37 @@ MAX_FIT_SAMPLES = 200_000
 ENVELOPE_SNR = 10.0
 #: Samples handed to the matrix pencil at most (its SVD grows with the cube).
 PENCIL_SAMPLES = 200
+#: Records sampled more finely than this (samples per period of the rough frequency)
+#: are averaged in blocks before the estimate ...
+PREAVERAGE_PER_PERIOD = 2000
+#: ... down to no fewer block means than this.
+PREAVERAGED_SAMPLES = 100_000
+
+
+def preaverage_block(samples: int, samples_per_period: float) -> int:
+    """Samples per block of the averaging before the estimate (1: none).
+
+    At most ``samples_per_period / PREAVERAGE_PER_PERIOD`` (so each block is under
+    1/2000 of a period and the block-mean factor ``1 + (s h)^2 / 24`` stays below
+    about 1e-6) and at most ``samples / PREAVERAGED_SAMPLES`` (so at least that many
+    block means remain, whatever the rough frequency got wrong).
+
+    Parameters
+    ----------
+    samples
+        Samples in the record.
+    samples_per_period
+        Samples per period of the rough frequency.
+
+    Returns
+    -------
+    int
+        The block length (samples).
+    """
+    if not math.isfinite(samples_per_period):
+        return 1
+    return max(1, min(int(samples_per_period // PREAVERAGE_PER_PERIOD),
+                      samples // PREAVERAGED_SAMPLES))
 
 
 @dataclass(frozen=True)
@@ -102,6 +144,8 @@ def estimate_ringdown(
     resolution: float | None = None,
     source: str = "trace",
     allow_aperiodic: bool = False,
+    preaverage: bool = True,
+    extremum_resolution: float | None = None,
 ) -> RingdownEstimate | AperiodicEstimate:
     """Estimate frequency, decay, amplitude and offset of a ring-down trace.
 
@@ -132,6 +176,15 @@ def estimate_ringdown(
         :class:`~xcheck.ringdown.aperiodic_result.AperiodicEstimate`; False (the
         default, for callers that need a frequency) refuses it with a message that says
         what it is.
+    preaverage
+        True (the default) to average a very finely sampled record in blocks first
+        (see the module notes and :func:`preaverage_block`); False estimates from every
+        sample.
+    extremum_resolution
+        The converter step whose rounding error q/sqrt(12) is added to each extremum's
+        uncertainty (near a turning point it does not average down); None: the same as
+        ``resolution``. Block means pass the samples' step here and none as
+        ``resolution``, their noise level already holding the quantisation.
 
     Returns
     -------
@@ -160,9 +213,16 @@ def estimate_ringdown(
         )
     t_in, v_in = t[keep], v[keep]
     filled = v if keep.all() else np.interp(t, t_in, v_in)
-    freq0 = rough_frequency(t, filled)
+    freq0 = rough_frequency(t, filled, step)
     period0 = 1.0 / freq0
     given = noise_sigma is not None and noise_sigma > 0 and math.isfinite(noise_sigma)
+    block = preaverage_block(len(t), period0 / step) if uniform and preaverage else 1
+    if block > 1:
+        return _preaveraged(
+            t, v, keep, block, noise_sigma=float(noise_sigma) if given else None,
+            modes=modes, resolution=resolution, source=source,
+            allow_aperiodic=allow_aperiodic, notes=notes,
+        )
     if noise_sigma is not None and not given:
         notes.append(
             f"noise level {noise_sigma} V is not a positive number; the residuals are used"
@@ -171,7 +231,9 @@ def estimate_ringdown(
     if resolution:
         sigma0 = math.hypot(sigma0, resolution / math.sqrt(12.0))
     offset0 = float(np.median(v_in))
-    first = find_extrema(t, v, period=period0, offset=offset0, noise_sigma=sigma0, keep=keep)
+    first = find_extrema(
+        t, v, period=period0, offset=offset0, noise_sigma=sigma0, keep=keep, step=step
+    )
     short = ringing_shortfall(t, first, freq0)
     if short is not None:
         return _not_ringing(
@@ -182,12 +244,13 @@ def estimate_ringdown(
     if len(first) >= 2:
         alpha_ld, omega_ld = log_decrement(first.time, first.value - offset0)
         rates_ld = [(alpha_ld, omega_ld)]
-    rates_mp = _pencil_rates(t, v, keep, uniform, period0, modes, rates_ld)
+    rates_mp = _pencil_rates(t, v, keep, uniform, period0, modes, rates_ld, step)
     if rates_mp is None:
         notes.append("matrix pencil gave no usable poles; started from the logarithmic decrement")
     noise = float(noise_sigma) if given else None
     fit = _fit(t, v, keep, rates_mp, rates_ld, modes, noise, resolution, uniform, step, source)
-    main = _assemble(t, v, keep, fit, notes, source_kind="trace", resolution=resolution)
+    at_extrema = resolution if extremum_resolution is None else extremum_resolution
+    main = _assemble(t, v, keep, fit, notes, source_kind="trace", resolution=at_extrema)
     if not main.envelope.flagged:
         return main
     period = 2.0 * math.pi / main.angular_frequency.value
@@ -205,11 +268,80 @@ def estimate_ringdown(
         refit,
         notes + [f"{int(near.sum())} samples around the flagged extrema left out"],
         source_kind="trace",
-        resolution=resolution,
+        resolution=at_extrema,
         envelope=main.envelope,
         extrema=(main.extrema_time, main.extrema_value),
     )
     return _pair(main, cleaned)
+
+
+def _preaveraged(
+    t: np.ndarray,
+    v: np.ndarray,
+    keep: np.ndarray,
+    block: int,
+    *,
+    noise_sigma: float | None,
+    modes: int,
+    resolution: float | None,
+    source: str,
+    allow_aperiodic: bool,
+    notes: list[str],
+) -> RingdownEstimate | AperiodicEstimate:
+    """The estimate made from means of ``block`` samples, given per sample again.
+
+    Blocks touching an excluded sample are left out. A given noise level (with the
+    quantisation variance q^2/12 when the step q exceeds it, as for single samples) is
+    divided by sqrt(block), as averaging white noise does; correlated noise shows in
+    the fit's residual check, which then uses the residual scatter.
+    """
+    n_blocks = len(t) // block
+    tb, vb = (x[: n_blocks * block].reshape(n_blocks, block).mean(axis=1) for x in (t, v))
+    keep_b = keep[: n_blocks * block].reshape(n_blocks, block).all(axis=1)
+    sigma = None
+    if noise_sigma is not None:
+        sigma = noise_sigma
+        if resolution and resolution > noise_sigma:
+            sigma = math.hypot(noise_sigma, resolution / math.sqrt(12.0))
+        sigma /= math.sqrt(block)
+    found = estimate_ringdown(
+        tb, vb, noise_sigma=sigma, exclude=~keep_b, modes=modes, resolution=None,
+        source=source, allow_aperiodic=allow_aperiodic, preaverage=False,
+        extremum_resolution=resolution,
+    )
+    note = (
+        f"averaged in blocks of {block} samples before the estimate (the record has "
+        f"{len(t)} samples; {n_blocks} block means); counts, noise level and residual RMS "
+        "are per sample again (the residual RMS as the block means' times "
+        f"sqrt({block}), which holds for white noise)"
+    )
+    return _per_sample(found, block, len(t), tuple(notes) + (note,))
+
+
+def _per_sample(
+    found: RingdownEstimate | AperiodicEstimate, block: int, samples: int,
+    notes: tuple[str, ...],
+) -> RingdownEstimate | AperiodicEstimate:
+    """An estimate made on block means with its counts and noise given per sample."""
+    used = int(found.samples_used) * block
+    scale = math.sqrt(block)
+    counted = tuple(
+        re.sub(r"^(\d+) samples around", lambda m: f"{int(m.group(1)) * block} samples around",
+               note)
+        for note in found.notes
+    )
+    changes = dict(
+        noise_sigma=found.noise_sigma * scale,
+        samples_used=used,
+        samples_excluded=samples - used,
+        effective_samples=found.effective_samples * block,
+        residual_rms=found.residual_rms * scale,
+        notes=notes + counted,
+    )
+    alternate = getattr(found, "alternate", None)
+    if alternate is not None:
+        changes["alternate"] = _per_sample(alternate, block, samples, notes)
+    return replace(found, **changes)
 
 
 def _pair(with_all: RingdownEstimate, without: RingdownEstimate) -> RingdownEstimate:
@@ -278,9 +410,9 @@ def _pencil_rates(
     period: float,
     modes: int,
     rates_ld: list[tuple[float, float]] | None,
+    step: float,
 ) -> list[tuple[float, float]] | None:
     """Starting (alpha, omega) pairs from the matrix pencil, largest amplitude first."""
-    step = sample_step(t)
     if not uniform:
         grid = np.arange(t[0], t[-1], step)
         v = np.interp(grid, t[keep], v[keep])

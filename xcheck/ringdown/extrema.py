@@ -1,7 +1,9 @@
 """Extrema of a ringing trace, refined between samples, and the logarithmic decrement.
 
 These give the first guess of frequency and decay and the points of the envelope
-diagnostics. Peak picking is scipy.signal.find_peaks; each peak is refined by a local
+diagnostics. Peak picking is :func:`xcheck.ringdown.signal_basics.spaced_peaks` (a
+running-maximum search, not scipy.signal, whose import alone costs half a second); each
+peak is refined by a local
 least-squares parabola over about a quarter period (numpy.polyfit), whose vertex gives a
 time between samples and a value with the noise of many samples averaged.
 """
@@ -12,7 +14,7 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.signal import find_peaks, periodogram, savgol_coeffs, savgol_filter
+from xcheck.ringdown.signal_basics import cubic_smoother_residual, spaced_peaks, strongest_line
 
 
 @dataclass(frozen=True)
@@ -56,21 +58,21 @@ def noise_from_smoothing(voltage: np.ndarray, samples_per_period: float) -> floa
     window += 1 - window % 2
     if window >= len(v):
         return float(np.std(v))
-    smooth = savgol_filter(v, window, 3)
-    centre = savgol_coeffs(window, 3)[window // 2]
-    resid = v - smooth
+    resid, centre = cubic_smoother_residual(v, window)
     mad = 1.4826 * float(np.median(np.abs(resid - np.median(resid))))
     return mad / math.sqrt(max(1.0 - centre, 1e-6))
 
 
-def rough_frequency(time: np.ndarray, voltage: np.ndarray) -> float:
-    """Frequency (Hz) of the strongest spectral peak above 1/record (scipy.signal.periodogram).
+def rough_frequency(time: np.ndarray, voltage: np.ndarray, step: float | None = None) -> float:
+    """Frequency (Hz) of the strongest periodogram bin above 1/record.
+
+    ``step`` is the sample interval (s) when the caller knows it (else the median one).
 
     Long records are averaged in blocks to at most 2**18 points first (the peak of a
     ring-down lies far below the block rate in any sensible capture).
     """
     v = np.asarray(voltage, dtype=float) - float(np.mean(voltage))
-    step = sample_step(time)
+    step = sample_step(time) if step is None else step
     block = max(1, math.ceil(len(v) / 2**18))
     if block > 1:
         n = len(v) // block
@@ -80,12 +82,7 @@ def rough_frequency(time: np.ndarray, voltage: np.ndarray) -> float:
     nfft = min(nfft, 1 << 22)
     # Rectangular window: a ring-down is strongest at the very start, where a tapered
     # window would suppress it.
-    freqs, power = periodogram(v, fs=1.0 / step, nfft=nfft, detrend=False, window="boxcar")
-    span = step * len(v)
-    usable = freqs >= 1.0 / span
-    if not usable.any():
-        return 1.0 / span
-    return float(freqs[usable][np.argmax(power[usable])])
+    return strongest_line(v, step, nfft, 1.0 / (step * len(v)))
 
 
 def find_extrema(
@@ -97,6 +94,7 @@ def find_extrema(
     noise_sigma: float,
     keep: np.ndarray | None = None,
     min_snr: float = 5.0,
+    step: float | None = None,
 ) -> Extrema:
     """Alternating maxima and minima of a ringing trace, refined between samples.
 
@@ -116,6 +114,8 @@ def find_extrema(
         extremum whose window touches an excluded sample is skipped.
     min_snr
         Significance threshold, see ``noise_sigma``.
+    step
+        The sample interval (s) when the caller knows it; None takes the median one.
 
     Returns
     -------
@@ -125,7 +125,7 @@ def find_extrema(
     t = np.asarray(time, dtype=float)
     v = np.asarray(voltage, dtype=float)
     ok = np.ones(len(t), dtype=bool) if keep is None else np.asarray(keep, dtype=bool)
-    step = sample_step(t)
+    step = sample_step(t) if step is None else step
     per_period = max(period / step, 2.0)
     half = max(1, int(round(per_period / 8.0)))
     distance = max(1, int(0.7 * per_period))
@@ -133,7 +133,7 @@ def find_extrema(
     floor = min_snr * noise_sigma / math.sqrt(2 * half + 1)
     candidates: list[tuple[int, int]] = []
     for sign in (1, -1):
-        peaks, _ = find_peaks(sign * y, distance=distance)
+        peaks = spaced_peaks(sign * y, distance)
         candidates += [(int(i), sign) for i in peaks]
     candidates.sort()
     uniform = bool(np.max(np.abs(np.diff(t) - step)) <= 1e-3 * step) if len(t) > 1 else True

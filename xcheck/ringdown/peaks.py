@@ -41,11 +41,11 @@ from collections.abc import Callable
 from dataclasses import replace
 
 import numpy as np
-from scipy import stats
 from scipy.optimize import least_squares, linprog
 
 from xcheck.errors import TraceError
 from xcheck.fitting.stats import covariance_from_jacobian
+from xcheck.quantiles import student_ppf
 from xcheck.ringdown.envelope import diagnose_envelope
 from xcheck.ringdown.reading_misses import reading_misses
 from xcheck.ringdown.result import (
@@ -535,8 +535,8 @@ def _estimate(
     jac = fit.jac.copy()
     jac[n:] /= factor_v
     cov_free = covariance_from_jacobian(jac)
-    k_t = float(stats.t.ppf(ONE_SIGMA, max(dof_t, 1)))
-    k_v = float(stats.t.ppf(ONE_SIGMA, max(dof_v, 1))) if residual_based_v else 1.0
+    k_t = float(student_ppf(ONE_SIGMA, max(dof_t, 1)))
+    k_v = float(student_ppf(ONE_SIGMA, max(dof_v, 1))) if residual_based_v else 1.0
     coverage = np.array([k_t, k_t, k_v, k_v, k_v])[free]
     cov_free = cov_free * np.outer(coverage, coverage)
     notes.append(

@@ -28,9 +28,9 @@ import math
 from dataclasses import dataclass, replace
 
 import numpy as np
-from scipy import stats
 from scipy.optimize import least_squares
 
+from xcheck.quantiles import normal_isf, student_isf
 from xcheck.values import format_eng
 
 #: A miss smaller than this fraction of the envelope is never flagged (common practice,
@@ -161,7 +161,7 @@ def reading_misses(times: np.ndarray, values: np.ndarray, signs: np.ndarray,
     if n < p + 2:
         return MissTest((), math.inf, floor, math.inf, ())
     stated = None if sigmas is None else np.asarray(sigmas, float)
-    normal = float(stats.norm.isf(FAMILY_LEVEL / (2 * n)))
+    normal = float(normal_isf(FAMILY_LEVEL / (2 * n)))
     tc = (t - t.mean()) / max(float(np.ptp(t)), 1e-300)
     # Forward search: a misread reading left in the others' fit drags it and makes its
     # neighbours look off (masking); the worst flagged reading is set aside and the
@@ -178,7 +178,7 @@ def reading_misses(times: np.ndarray, values: np.ndarray, signs: np.ndarray,
         excluded.add(max(fresh, key=lambda m: abs(m.deviation)).index)
     found = tuple(replace(m, flagged=m.index in excluded or m.flagged) for m in misses)
     threshold = (normal if stated is not None or floor_stated
-                 else float(stats.t.isf(FAMILY_LEVEL / (2 * n), n - 1 - p)))
+                 else float(student_isf(FAMILY_LEVEL / (2 * n), n - 1 - p)))
     last = found[-1]
     total = math.sqrt(last.sigma ** 2 + last.prediction_variance)
     detectable = (max(threshold * total / last.envelope, PRACTICAL_MISS)
@@ -210,7 +210,7 @@ def _one_pass(tc: np.ndarray, v: np.ndarray, sign: np.ndarray, stated: np.ndarra
         elif floor_stated:
             flagged = abs(z) > normal and abs(fraction) > PRACTICAL_MISS
         else:
-            student = float(stats.t.isf(FAMILY_LEVEL / (2 * n), int(rest.sum()) - p))
+            student = float(student_isf(FAMILY_LEVEL / (2 * n), int(rest.sum()) - p))
             z_scatter = sign[i] * miss / math.sqrt(max(scatter ** 2 + var_pred, 1e-300))
             flagged = abs(z_scatter) > student and abs(fraction) > ORDINARY_MISS
         out.append(ReadingMiss(i, float(env), float(fraction), float(z), float(sigma),
