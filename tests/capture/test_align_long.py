@@ -111,3 +111,19 @@ def test_abrupt_step_in_a_long_record_is_dated_between_full_rate_samples():
     assert abs(found.event_time - event) <= 0.5 * step
     assert any("jump" in note for note in found.notes)
     assert any("consecutive samples" in note for note in found.notes)
+
+
+@pytest.mark.parametrize("kind, sign", [("natural", 1), ("natural", -1), ("step", 1), ("step", -1)])
+def test_first_swing_sign_on_a_long_record(kind: str, sign: int) -> None:
+    # A natural response starting from +V0 first swings down (towards zero), a step
+    # of +Vs first rises (textbook responses above). On a LONG-sample record the
+    # swing's size is taken on every 10th sample and its start searched in chunks;
+    # the sign must still come out right, and a wrong expected sign must be reported
+    # as an inverted probe.
+    trace, _ = long_record(7, kind)
+    if sign < 0:
+        trace = Trace(trace.time, -trace.voltage, trace.source, trace.column)
+    _, right = align_trace(trace, expect=kind, expected_sign=sign)
+    _, wrong = align_trace(trace, expect=kind, expected_sign=-sign)
+    assert not right.inverted
+    assert wrong.inverted

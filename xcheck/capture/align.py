@@ -73,6 +73,9 @@ ONSET_EVIDENCE = 9.0
 #: docstring); the samples of one block are averaged. Shorter records are searched
 #: sample by sample. 50 000 samples: the search then takes a few tens of milliseconds.
 DETECT_SAMPLES = 50_000
+#: The first swing's size is taken over at most this many samples (every k-th of a
+#: longer record) and its start searched in chunks of this many.
+SWING_SAMPLES = 200_000
 #: The onset's curve fits use about this many points at most: a longer window is
 #: averaged in blocks first (a jump is still placed between two of its samples).
 ONSET_FIT_SAMPLES = 4000
@@ -631,8 +634,10 @@ def align_trace(
                 "full-rate samples around it"
             )
 
-    pre = t < event - GUARD_SAMPLES * step
-    count = int(np.count_nonzero(pre))
+    # The times increase strictly (the reader checks), so "before" and "after" are
+    # slices: views, not copies of a long record.
+    pre = slice(0, int(np.searchsorted(t, event - GUARD_SAMPLES * step, side="left")))
+    count = pre.stop
     if count >= 3:
         line = _fit_line(t[pre], v[pre])
         baseline = float(line.predict(np.array([event]))[0])
@@ -654,12 +659,13 @@ def align_trace(
             "(capture some time before the trigger)"
         )
 
-    after = t >= event
-    if np.count_nonzero(after) < MIN_SAMPLES:
+    after = slice(int(np.searchsorted(t, event, side="left")), None)
+    following = t.size - after.start
+    if following < MIN_SAMPLES:
         raise TraceError(
             trace.source,
             [
-                f"only {np.count_nonzero(after)} samples follow the event at {event:.9g} s; "
+                f"only {following} samples follow the event at {event:.9g} s; "
                 f"at least {MIN_SAMPLES} are needed: move the trigger earlier in the record"
             ],
         )
@@ -708,18 +714,33 @@ def align_trace(
 def _first_swing(
     t: np.ndarray, v: np.ndarray, event: float, line: _Line | None, noise: float, floor: float
 ) -> int:
-    """Sign (+1, -1, or 0 when unclear) of the trace's first clear move after the event."""
-    after = t >= event
-    if line is not None:
-        departure = v[after] - line.predict(t[after])
-        limit = THRESHOLD_SIGMA * max(noise, floor)
-    else:
-        departure = v[after] - v[after][0]
-        limit = floor
-    swing = float(np.max(np.abs(departure)))
+    """Sign (+1, -1, or 0 when unclear) of the trace's first clear move after the event.
+
+    The largest departure sets the level a clear move must pass (``ONSET_FRACTION`` of
+    it, at least the noise threshold); it is taken over every sample of a record of up
+    to ``SWING_SAMPLES`` after the event, else over every k-th sample (k the record
+    over ``SWING_SAMPLES``), which can only lower the level a little. The first
+    sample beyond the level is then searched chunk by chunk from the event, so the
+    work does not grow with the record when the move comes early, as it does.
+    """
+    start = int(np.searchsorted(t, event, side="left"))
+    t_after, v_after = t[start:], v[start:]
+
+    def departure(times: np.ndarray, volts: np.ndarray) -> np.ndarray:
+        if line is not None:
+            return volts - line.predict(times)
+        return volts - v_after[0]
+
+    limit = THRESHOLD_SIGMA * max(noise, floor) if line is not None else floor
+    stride = max(1, math.ceil(t_after.size / SWING_SAMPLES))
+    swing = float(np.max(np.abs(departure(t_after[::stride], v_after[::stride]))))
     level = max(limit, ONSET_FRACTION * swing)
-    beyond = np.flatnonzero(np.abs(departure) > level)
-    return int(np.sign(departure[beyond[0]])) if beyond.size else 0
+    for lo in range(0, t_after.size, SWING_SAMPLES):
+        chunk = departure(t_after[lo : lo + SWING_SAMPLES], v_after[lo : lo + SWING_SAMPLES])
+        beyond = np.flatnonzero(np.abs(chunk) > level)
+        if beyond.size:
+            return int(np.sign(chunk[beyond[0]]))
+    return 0
 
 
 def _level_notes(
@@ -727,12 +748,12 @@ def _level_notes(
     baseline: float,
     swing: int,
     v: np.ndarray,
-    after: np.ndarray,
+    after: slice,
     noise: float,
     notes: list[str],
 ) -> None:
     post = v[after]
-    size = float(np.max(np.abs(post - baseline)))
+    size = max(float(np.max(post)) - baseline, baseline - float(np.min(post)))
     if expect == "natural":
         if abs(baseline) < 0.1 * size:
             notes.append(
@@ -752,10 +773,10 @@ def _level_notes(
         )
 
 
-def _clipping_note(trace: Trace, pre: np.ndarray, after: np.ndarray, notes: list[str]) -> None:
+def _clipping_note(trace: Trace, pre: slice, after: slice, notes: list[str]) -> None:
     clipped_pre = int(np.count_nonzero(trace.clipped[pre]))
     clipped_after = int(np.count_nonzero(trace.clipped[after]))
-    if clipped_pre and clipped_pre >= 0.5 * np.count_nonzero(pre):
+    if clipped_pre and clipped_pre >= 0.5 * pre.stop:
         notes.append(
             f"{clipped_pre} samples before the event sit at the record's extreme value: "
             "either the capture clipped (widen the vertical range) or the baseline is "
