@@ -31,6 +31,7 @@ from __future__ import annotations
 import argparse
 import json
 import math
+import re
 import subprocess
 import sys
 import tempfile
@@ -136,9 +137,35 @@ def _run_launched(command: list[str]) -> dict:
 
 
 def compare_once(fixture: Path, trace: Path, out: Path) -> dict:
-    """``xcheck compare`` in a fresh process: wall time (s), peak RSS (bytes), status."""
+    """``xcheck compare`` in a fresh process: wall time (s), peak RSS (bytes), status,
+    and its progress lines (stderr), whose time stamps give the stages."""
     return _run_launched([sys.executable, "-m", "xcheck", "compare", str(fixture),
-                          "--trace", str(trace), "--out", str(out), "--quiet"])
+                          "--trace", str(trace), "--out", str(out), "--force"])
+
+
+#: A progress line of ``xcheck compare``: ``[  1.2 s] what starts now``.
+PROGRESS_LINE = re.compile(r"^\[\s*([0-9.]+) s\] (.*)$")
+
+
+def stages(stderr: str) -> dict[str, float]:
+    """Seconds from compare's progress lines: the measurement (read, align, estimate),
+    the fits, ngspice (its start and the runs), and the time stamp where the report
+    starts. Empty when the lines are not there."""
+    stamps: list[tuple[float, str]] = []
+    for line in stderr.splitlines():
+        found = PROGRESS_LINE.match(line.strip())
+        if found:
+            stamps.append((float(found.group(1)), found.group(2)))
+
+    def first(prefix: str) -> float | None:
+        return next((at for at, what in stamps if what.startswith(prefix)), None)
+
+    read, fit, spice, report = (first(p) for p in ("reading", "fitting", "starting ngspice",
+                                                   "writing the report"))
+    if None in (read, fit, spice, report):
+        return {}
+    return {"measurement_s": fit - read, "fits_s": spice - fit, "ngspice_s": report - spice,
+            "report_at_s": report}
 
 
 def parts_once(fixture: Path, trace: Path, runs: int) -> dict:
@@ -237,15 +264,33 @@ def _size_row(key: str, samples: int, size_mb: float, run: dict, parts: dict) ->
         f"alignment {parts['align_s']:.2f} s, ring-down estimate {estimate_s:.2f} s "
         "(these three timed in a second fresh process)"
     )
+    staged = stages(run.get("stderr", ""))
+    if staged:
+        report_s = max(run["wall_s"] - parts["import_s"] - staged["report_at_s"], 0.0)
+        note += (
+            f"; stages of the run (its progress lines, 0.1 s steps): measurement read, "
+            f"aligned and estimated {staged['measurement_s']:.1f} s, fits "
+            f"{staged['fits_s']:.1f} s, ngspice start and runs {staged['ngspice_s']:.1f} s, "
+            f"report and exit about {report_s:.1f} s (wall less imports less the report's "
+            "time stamp)"
+        )
     if ratio > RATIO_GOAL:
-        causes = sorted((
+        causes = [
             ("the imports (numpy, scipy, matplotlib, pyarrow, PySpice and xcheck's own "
              "modules), a fixed cost", parts["import_s"]),
-            ("the ring-down estimate on the full-rate samples", estimate_s),
+            ("the ring-down estimate", estimate_s),
             ("event detection and alignment", parts["align_s"]),
-            ("the fits, the ngspice evaluation of the fitted values and the report "
-             "(the rest)", max(rest - parts["import_s"] - estimate_s - parts["align_s"], 0.0)),
-        ), key=lambda item: -item[1])
+        ]
+        if staged:
+            causes += [
+                ("the fits", staged["fits_s"]),
+                ("the report's figures and files, a nearly fixed cost", report_s),
+            ]
+        else:
+            causes.append((
+                "the fits, the ngspice evaluation of the fitted values and the report "
+                "(the rest)", max(rest - parts["import_s"] - estimate_s - parts["align_s"], 0.0)))
+        causes.sort(key=lambda item: -item[1])
         note += "; likely reason: " + ", then ".join(
             f"{words} ({seconds:.2f} s)" for words, seconds in causes[:2])
     return Row(key, f"compare end to end, {samples:,} samples ({size_mb:.0f} MB CSV)",

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import subprocess
 import sys
+from pathlib import Path
 
 import pytest
 
@@ -53,3 +54,22 @@ def test_unknown_command_and_no_command_exit_2(printed) -> None:
     assert cli.main(["no-such-command"]) == 2
     assert "xcheck:" in printed().err
     assert cli.main([]) == 2
+
+
+def test_the_console_entry_flushes_and_keeps_the_exit_status(tmp_path) -> None:
+    # The entry point ends the process with os._exit after flushing the streams and
+    # running the exit handlers: what was printed must arrive whole through a pipe, the
+    # written deck must be there, and the status must be the command's (0; 2 for bad
+    # input, the project's stated convention).
+    deck = tmp_path / "out.cir"
+    fixture = Path(__file__).resolve().parent.parent / "examples" / "film_ringdown.toml"
+    ok = subprocess.run([sys.executable, "-m", "xcheck", "deck", str(fixture), "--out", str(deck)],
+                        capture_output=True, text=True, timeout=120)
+    assert ok.returncode == 0, ok.stderr
+    assert deck.read_text(encoding="utf-8").rstrip().endswith(".end")
+    assert str(deck) in ok.stdout
+    bad = subprocess.run([sys.executable, "-m", "xcheck", "deck", str(tmp_path / "missing.toml")],
+                         capture_output=True, text=True, timeout=120)
+    assert bad.returncode == 2
+    assert bad.stderr.startswith("xcheck: ") and "missing.toml" in bad.stderr
+    assert "Traceback" not in bad.stderr

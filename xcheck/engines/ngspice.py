@@ -468,9 +468,13 @@ def _serve(conn: Connection) -> None:
         try:
             request = conn.recv()
         except (EOFError, OSError):
-            return
+            request = None
         if request is None:
-            return
+            # Done: end at once. The interpreter's teardown with the ngspice library
+            # loaded took a few tenths of a second the parent waited for; this child
+            # holds no file to flush.
+            conn.close()
+            os._exit(0)
         try:
             runner = _run_ac_in_child if isinstance(request, AcDeckRun) else _run_in_child
             conn.send(("ok", runner(shared, request)))
