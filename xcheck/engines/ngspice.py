@@ -54,13 +54,15 @@ from collections.abc import Callable, Sequence
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from multiprocessing.connection import Connection
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from xcheck.circuit.model import Circuit
 from xcheck.errors import SimulationError, XcheckError
 from xcheck.engines.waveform import Waveform
+
+if TYPE_CHECKING:  # the ngspice child imports this module: it needs no circuit graph
+    from xcheck.circuit.model import Circuit
 
 #: The ways to install the shared library (a clause, no capital, no full stop).
 INSTALL_WAYS = (
