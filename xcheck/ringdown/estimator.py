@@ -206,13 +206,16 @@ def estimate_ringdown(
     t, v, keep = validated(time, voltage, exclude, source)
     notes: list[str] = []
     step = sample_step(t)
-    uniform = bool(np.max(np.abs(np.diff(t) - step)) <= 1e-3 * step)
+    spread = np.diff(t)
+    spread -= step
+    np.abs(spread, out=spread)
+    uniform = bool(spread.max() <= 1e-3 * step)
+    del spread
     if not uniform:
         notes.append(
             "sampling is not uniform: the pencil runs on an interpolated copy, no block averaging"
         )
-    t_in, v_in = t[keep], v[keep]
-    filled = v if keep.all() else np.interp(t, t_in, v_in)
+    filled = v if keep.all() else np.interp(t, t[keep], v[keep])
     freq0 = rough_frequency(t, filled, step)
     period0 = 1.0 / freq0
     given = noise_sigma is not None and noise_sigma > 0 and math.isfinite(noise_sigma)
@@ -227,6 +230,7 @@ def estimate_ringdown(
         notes.append(
             f"noise level {noise_sigma} V is not a positive number; the residuals are used"
         )
+    v_in = v[keep]
     sigma0 = float(noise_sigma) if given else noise_from_smoothing(filled, period0 / step)
     if resolution:
         sigma0 = math.hypot(sigma0, resolution / math.sqrt(12.0))

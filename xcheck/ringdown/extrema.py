@@ -71,13 +71,14 @@ def rough_frequency(time: np.ndarray, voltage: np.ndarray, step: float | None = 
     Long records are averaged in blocks to at most 2**18 points first (the peak of a
     ring-down lies far below the block rate in any sensible capture).
     """
-    v = np.asarray(voltage, dtype=float) - float(np.mean(voltage))
+    v = np.asarray(voltage, dtype=float)
     step = sample_step(time) if step is None else step
     block = max(1, math.ceil(len(v) / 2**18))
     if block > 1:
         n = len(v) // block
         v = v[: n * block].reshape(n, block).mean(axis=1)
         step *= block
+    v = v - float(np.mean(v))
     nfft = 1 << max(12, (8 * len(v) - 1).bit_length())
     nfft = min(nfft, 1 << 22)
     # Rectangular window: a ring-down is strongest at the very start, where a tapered
