@@ -21,9 +21,8 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
-from xcheck.atomic import PNG_METADATA  # noqa: E402
 from xcheck.report.decimate import POINT_SPREAD, columns_of, envelope  # noqa: E402
-from xcheck.report.figures import time_scale  # noqa: E402
+from xcheck.report.figures import save_png, time_scale  # noqa: E402
 from xcheck.values import format_eng  # noqa: E402
 
 if TYPE_CHECKING:
@@ -118,6 +117,4 @@ def aperiodic_figure(
         axis.legend(fontsize=7, frameon=False, loc="upper right")
         axis.tick_params(labelsize=8)
     fig.tight_layout()
-    fig.savefig(path, format="png", metadata=PNG_METADATA)
-    plt.close(fig)
-    return path
+    return save_png(fig, path)

@@ -38,8 +38,8 @@ import matplotlib.pyplot as plt  # noqa: E402
 from matplotlib.ticker import FuncFormatter  # noqa: E402
 
 from xcheck import __version__  # noqa: E402
-from xcheck.atomic import PNG_METADATA, json_is_ours, write_folder_atomically  # noqa: E402
-from xcheck.report.figures import SHADES  # noqa: E402
+from xcheck.atomic import json_is_ours, write_folder_atomically  # noqa: E402
+from xcheck.report.figures import SHADES, save_png  # noqa: E402
 from xcheck.report.markdown import escape_markdown  # noqa: E402
 from xcheck.report.summary import summary_text  # noqa: E402
 from xcheck.values import format_eng  # noqa: E402
@@ -277,9 +277,7 @@ def value_figure(path: Path, entries: Sequence[BatchEntry], value_label: str,
     for side in ("top", "right"):
         axis.spines[side].set_visible(False)
     fig.tight_layout()
-    fig.savefig(path, format="png", metadata=PNG_METADATA)
-    plt.close(fig)
-    return path
+    return save_png(fig, path)
 
 
 def write_batch_folder(out: str | Path, entries: Sequence[BatchEntry], *, folder: str,

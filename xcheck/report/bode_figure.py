@@ -39,8 +39,7 @@ from matplotlib.ticker import (  # noqa: E402
 )
 from matplotlib.transforms import blended_transform_factory  # noqa: E402
 
-from xcheck.atomic import PNG_METADATA  # noqa: E402
-from xcheck.report.figures import LINE_STYLES, SHADES  # noqa: E402
+from xcheck.report.figures import LINE_STYLES, SHADES, save_png  # noqa: E402
 
 #: Figure size (inches) and resolution, and the panels' height ratios (top to bottom).
 FIGSIZE = (8.0, 7.6)
@@ -258,8 +257,5 @@ def write_bode_figure(path: Path, frequency: np.ndarray, measured: np.ndarray,
     """
     fig = bode_axes(frequency, measured, curves, title=title, unit=unit,
                     resonances=resonances)
-    try:
-        fig.savefig(path, format="png", metadata=PNG_METADATA)
-    finally:
-        plt.close(fig)
+    save_png(fig, Path(path))
     return Path(path)

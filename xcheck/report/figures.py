@@ -28,6 +28,7 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
+from matplotlib.layout_engine import PlaceHolderLayoutEngine  # noqa: E402
 from matplotlib.ticker import EngFormatter  # noqa: E402
 
 from xcheck.atomic import PNG_METADATA  # noqa: E402
@@ -61,10 +62,20 @@ def _style(axis: plt.Axes) -> None:
         axis.spines[side].set_visible(False)
 
 
-def _save(fig: plt.Figure, path: Path, **options) -> Path:
-    """Save ``fig`` to ``path`` as PNG with xcheck's metadata, then close it."""
-    fig.savefig(path, format="png", metadata=PNG_METADATA, **options)
-    plt.close(fig)
+def save_png(fig: plt.Figure, path: Path, **options) -> Path:
+    """Save ``fig`` to ``path`` as PNG with xcheck's metadata, then close it.
+
+    ``fig.tight_layout()`` leaves a placeholder layout engine on the figure, for which
+    ``savefig`` draws the whole figure once more before drawing it into the file
+    (matplotlib 3.6 and later); the layout is done by then, so that engine is dropped
+    first: the same pixels, drawn once.
+    """
+    try:
+        if isinstance(fig.get_layout_engine(), PlaceHolderLayoutEngine):
+            fig.set_layout_engine(None)
+        fig.savefig(path, format="png", metadata=PNG_METADATA, **options)
+    finally:
+        plt.close(fig)
     return path
 
 
@@ -77,7 +88,7 @@ def _finish(fig: plt.Figure, axis: plt.Axes, path: Path, xlabel: str, ylabel: st
     axis.legend(fontsize=8, frameon=False)
     _style(axis)
     fig.tight_layout()
-    return _save(fig, path)
+    return save_png(fig, path)
 
 
 def overlay_figure(path: Path, time: np.ndarray, measured: np.ndarray,
@@ -144,7 +155,7 @@ def residual_figure(path: Path, time: np.ndarray,
         _style(axis)
     axes[-1, 0].set_xlabel(f"time from the event ({prefix}s)")
     fig.tight_layout()
-    return _save(fig, path)
+    return save_png(fig, path)
 
 
 def envelope_figure(path: Path, times: np.ndarray, amplitudes: np.ndarray,
@@ -296,7 +307,7 @@ def ringdown_figure(path: Path, estimate: RingdownEstimate, time: np.ndarray,
         axis.legend(fontsize=7, frameon=False, loc="upper right")
         axis.tick_params(labelsize=8)
     fig.tight_layout()
-    return _save(fig, path)
+    return save_png(fig, path)
 
 
 def _shown_span(estimate: RingdownEstimate, time: np.ndarray, extrema_time: np.ndarray) -> float:
@@ -354,4 +365,4 @@ def prediction_figure(path: Path, prediction: Prediction, title: str) -> Path:
     for row in axes:
         row[0].grid(True, linestyle=":", linewidth=0.6, color="0.75")
     figure.tight_layout()
-    return _save(figure, path, dpi=120)
+    return save_png(figure, path, dpi=120)

@@ -15,7 +15,7 @@ from typing import Sequence
 
 import numpy as np
 
-from xcheck.report.figures import SHADES, time_scale
+from xcheck.report.figures import SHADES, save_png, time_scale
 
 
 def band_figure(path: Path, panels: Sequence[dict], title: str, peaks: bool = False,
@@ -42,7 +42,6 @@ def band_figure(path: Path, panels: Sequence[dict], title: str, peaks: bool = Fa
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from xcheck.atomic import PNG_METADATA
 
     count = max(len(panels), 1)
     span = max((float(np.max(np.abs(p["times"]))) for p in panels if len(p["times"])),
@@ -79,6 +78,4 @@ def band_figure(path: Path, panels: Sequence[dict], title: str, peaks: bool = Fa
                            else f"time from the event ({prefix}s)")
     fig.suptitle(title, fontsize=10)
     fig.tight_layout()
-    fig.savefig(path, format="png", metadata=PNG_METADATA)
-    plt.close(fig)
-    return path
+    return save_png(fig, path)
