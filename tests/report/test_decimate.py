@@ -81,16 +81,16 @@ def test_limits_keep_only_the_shown_range_and_its_neighbours():
 
 def test_overlay_figure_draws_the_spike_from_a_long_record(tmp_path: Path, monkeypatch):
     # What the figure draws, read from matplotlib's own Line2D objects just before the
-    # file is written (figures._save is the one place figures are saved).
+    # file is written (figures.save_png is the one place figures are saved).
     drawn = {}
-    save = figures._save
+    save = figures.save_png
 
     def spy(fig, path, **options):
         drawn["lines"] = [(line.get_label(), np.asarray(line.get_ydata()))
                           for line in fig.axes[0].get_lines()]
         return save(fig, path, **options)
 
-    monkeypatch.setattr(figures, "_save", spy)
+    monkeypatch.setattr(figures, "save_png", spy)
     t, v = _record()
     smooth = 5.0 * np.exp(-800.0 * t) * np.cos(2 * math.pi * 2e5 * t)
     figures.overlay_figure(tmp_path / "overlay.png", t, v, [("model", smooth)], "long record")
