@@ -293,6 +293,15 @@ def _size_row(key: str, samples: int, size_mb: float, run: dict, parts: dict) ->
         causes.sort(key=lambda item: -item[1])
         note += "; likely reason: " + ", then ".join(
             f"{words} ({seconds:.2f} s)" for words, seconds in causes[:2])
+        allowance = (RATIO_GOAL - 1.0) * floor
+        fixed = parts["import_s"] + (report_s if staged else 0.0)
+        if fixed > allowance:
+            note += (
+                f"; the fixed costs alone ({fixed:.2f} s of imports"
+                + (" and report" if staged else "")
+                + f") exceed the {allowance:.2f} s the goal leaves beyond the unavoidable "
+                "parts at this size"
+            )
     return Row(key, f"compare end to end, {samples:,} samples ({size_mb:.0f} MB CSV)",
                f"<= {RATIO_GOAL:g}x", "one read_trace of the file + one ngspice run per "
                "candidate evaluated", f"{ratio:.2f}x", judged(ratio <= RATIO_GOAL), note)

@@ -178,8 +178,14 @@ def measure(rows: int, repeat: int, compressed: bool, key: str, workdir: Path) -
             judged(ratio >= THROUGHPUT_GOAL),
             f"best of {repeat}: bare {bare:.3f} s, read_trace {ours:.3f} s (validation included)"
             + ("" if ratio >= THROUGHPUT_GOAL else
-               "; likely reason: the checks and the copy into numpy arrays on top of the parse "
-               "(and machine load: the ratio moves by about 0.07 between runs)"),
+               "; likely reason: " + (
+                   "the content is decompressed twice, once to refuse a file that expands past "
+                   "xcheck's 2 GiB limit before any row is parsed (a small gzip file can hold "
+                   "gigabytes of rows, which the parse would put in memory first), then by the "
+                   "parse; that first pass costs about as much as the bare read's own "
+                   "decompression" if compressed else
+                   "the checks and the copy into numpy arrays on top of the parse (and machine "
+                   "load: the ratio moves by about 0.07 between runs)")),
         )
     ]
     columns_bytes = rows * COLUMNS * 8.0
@@ -199,8 +205,12 @@ def measure(rows: int, repeat: int, compressed: bool, key: str, workdir: Path) -
             f"whose ru_maxrss Linux carries over from the parent): read_trace {ours_peak / 1e6:.0f} MB, "
             f"bare pyarrow {bare_peak / 1e6:.0f} MB ({bare_peak / columns_bytes:.2f}x)"
             + ("" if mem <= MEMORY_GOAL else
-               "; likely reason: pyarrow's chunks and the contiguous numpy copies are alive "
-               "at the same time, plus the parse buffers"),
+               "; likely reason: " + (
+                   "pyarrow.csv.read_csv itself, whose own peak on this file is as high (its "
+                   "parse buffers and the table's chunks); read_trace's numpy copies add "
+                   "nothing above it" if ours_peak <= 1.05 * bare_peak else
+                   "pyarrow's chunks and the contiguous numpy copies are alive at the same "
+                   "time, plus the parse buffers")),
         )
     )
     return rows_out

@@ -174,12 +174,16 @@ def test_theil_sen_rejects_mismatched_lengths_like_scipy_stats():
         theil_sen([1.0, 2.0, 3.0], [0.0, 1.0])
 
 
-def test_compare_start_up_does_not_import_scipy_stats():
+def test_compare_start_up_does_not_import_scipy_stats_or_signal():
     # Checked through sys.modules in a fresh interpreter, never by timing: scipy.stats
-    # costs about 0.4 s to import and the compare command needs none of it.
+    # and scipy.signal (which imports scipy.stats) cost about half a second to import,
+    # and the compare command needs neither (xcheck.quantiles and
+    # xcheck.ringdown.signal_basics hold what it uses). The probe imports numpy, so an
+    # empty module list cannot pass.
     code = ("import sys\n"
             "import xcheck.commands.compare, xcheck.report.markdown\n"
-            "print('scipy.stats' in sys.modules)\n")
+            "print('numpy' in sys.modules, 'scipy.stats' in sys.modules,"
+            " 'scipy.signal' in sys.modules)\n")
     result = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                             timeout=120, check=True)
-    assert result.stdout.strip() == "False", result.stdout + result.stderr
+    assert result.stdout.split() == ["True", "False", "False"], result.stdout + result.stderr

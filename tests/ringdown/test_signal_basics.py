@@ -130,3 +130,25 @@ def test_preaveraged_estimate_matches_every_sample() -> None:
     # per sample) are the same within 20 ns (3e-5 of a period); near the floor
     # the two searches may keep or drop a different last few.
     assert np.allclose(fast.extrema_time[:15], full.extrema_time[:15], atol=2e-8)
+
+
+def test_preaveraged_aperiodic_record_keeps_its_time_constant() -> None:
+    # An invented first-order decay (tau 0.5 ms, 5 V, 20 mV noise) sampled 2e6 times
+    # over 4 ms: no ringing, so the rough frequency is about 1/record and the record is
+    # averaged to 100 000 means. The time constant from the means must match the one
+    # from every sample within a tenth of its standard error, the counts and noise
+    # level must be per sample, and the note must say so. Reference: v = V0 exp(-t/tau)
+    # (first-order RC discharge, textbook; from memory).
+    n = 2_000_000
+    t = np.linspace(0.0, 4e-3, n)
+    rng = np.random.default_rng(7)
+    v = 5.0 * np.exp(-t / 5e-4) + 0.02 * rng.standard_normal(n)
+    fast = estimate_ringdown(t, v, noise_sigma=0.02, allow_aperiodic=True)
+    full = estimate_ringdown(t, v, noise_sigma=0.02, allow_aperiodic=True, preaverage=False)
+    assert fast.aperiodic and full.aperiodic
+    assert any("averaged in blocks of 20 samples" in note for note in fast.notes)
+    a, b = fast.time_constants[0], full.time_constants[0]
+    assert abs(a.value - b.value) < 0.1 * b.stderr
+    assert a.stderr == pytest.approx(b.stderr, rel=0.05)
+    assert fast.samples_used + fast.samples_excluded == n
+    assert fast.noise_sigma == pytest.approx(0.02, rel=1e-12)
