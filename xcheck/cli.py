@@ -140,8 +140,8 @@ def _dispatch(argv: Sequence[str] | None) -> int:
 def entry() -> None:
     """Console-script entry point.
 
-    When the command is done the process ends at once: the standard streams are flushed
-    and the exit handlers run (the ngspice child is stopped), then ``os._exit`` skips
+    When the command is done the process ends at once: the exit handlers run (the
+    ngspice child is stopped) and the standard streams are flushed, then ``os._exit`` skips
     the interpreter's own teardown. Every file xcheck writes is closed by then (reports
     are written whole and renamed into place); the teardown of the libraries' modules
     and of a long measurement's arrays took about half a second the user waited for.
@@ -150,10 +150,10 @@ def entry() -> None:
     run_exit_handlers = getattr(atexit, "_run_exitfuncs", None)
     if run_exit_handlers is None:  # not CPython: the ordinary exit
         raise SystemExit(code)
+    run_exit_handlers()  # first: what a handler prints is flushed below
     for stream in (sys.stdout, sys.stderr):
         try:
             stream.flush()
         except (OSError, ValueError):  # a closed pipe: nothing more can be said there
             pass
-    run_exit_handlers()
     os._exit(code)

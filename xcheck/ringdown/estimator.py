@@ -22,7 +22,10 @@ the counts, noise level and residual RMS are then given per sample again. A bloc
 few thousandths of a period changes nothing the estimate can resolve: the mean of
 ``exp(s t)`` over a block of length h is ``exp(s t_c)`` times ``1 + (s h)^2 / 24 + ...``
 (the factor :func:`xcheck.ringdown.nls.unblock` divides out), under 1e-6 here; poles,
-and so frequency and decay, are unchanged.
+and so frequency and decay, are unchanged. The Cramér-Rao bound is then that of the
+block means at their noise level: the same as from every sample for white noise, and for
+noise correlated within a block (which the residual check finds) the block means'
+larger scatter.
 
 A record whose extrema show too little ringing is handed to
 :func:`xcheck.ringdown.aperiodic.analyse_aperiodic`: when it settles without ringing
@@ -219,16 +222,16 @@ def estimate_ringdown(
     freq0 = rough_frequency(t, filled, step)
     period0 = 1.0 / freq0
     given = noise_sigma is not None and noise_sigma > 0 and math.isfinite(noise_sigma)
+    if noise_sigma is not None and not given:
+        notes.append(
+            f"noise level {noise_sigma} V is not a positive number; the residuals are used"
+        )
     block = preaverage_block(len(t), period0 / step) if uniform and preaverage else 1
     if block > 1:
         return _preaveraged(
             t, v, keep, block, noise_sigma=float(noise_sigma) if given else None,
             modes=modes, resolution=resolution, source=source,
             allow_aperiodic=allow_aperiodic, notes=notes,
-        )
-    if noise_sigma is not None and not given:
-        notes.append(
-            f"noise level {noise_sigma} V is not a positive number; the residuals are used"
         )
     v_in = v[keep]
     sigma0 = float(noise_sigma) if given else noise_from_smoothing(filled, period0 / step)
@@ -294,57 +297,110 @@ def _preaveraged(
 ) -> RingdownEstimate | AperiodicEstimate:
     """The estimate made from means of ``block`` samples, given per sample again.
 
-    Blocks touching an excluded sample are left out. A given noise level (with the
-    quantisation variance q^2/12 when the step q exceeds it, as for single samples) is
-    divided by sqrt(block), as averaging white noise does; correlated noise shows in
-    the fit's residual check, which then uses the residual scatter.
+    Blocks touching an excluded sample are left out, and so are the samples after the
+    last whole block. A given noise level (with the quantisation variance q^2/12 when
+    the step q exceeds it, as for single samples) is divided by sqrt(block), as
+    averaging white noise does; noise correlated over a few samples (a bandwidth limit)
+    shows in the fit's residual check, which then uses the block means' own scatter.
+    See :func:`_per_sample` for what is given per sample afterwards.
     """
     n_blocks = len(t) // block
     tb, vb = (x[: n_blocks * block].reshape(n_blocks, block).mean(axis=1) for x in (t, v))
     keep_b = keep[: n_blocks * block].reshape(n_blocks, block).all(axis=1)
+    per_sample = None
     sigma = None
     if noise_sigma is not None:
-        sigma = noise_sigma
+        per_sample = noise_sigma
         if resolution and resolution > noise_sigma:
-            sigma = math.hypot(noise_sigma, resolution / math.sqrt(12.0))
-        sigma /= math.sqrt(block)
+            per_sample = math.hypot(noise_sigma, resolution / math.sqrt(12.0))
+        sigma = per_sample / math.sqrt(block)
     found = estimate_ringdown(
         tb, vb, noise_sigma=sigma, exclude=~keep_b, modes=modes, resolution=None,
         source=source, allow_aperiodic=allow_aperiodic, preaverage=False,
         extremum_resolution=resolution,
     )
+    left_out = len(t) - int(keep.sum()) if not keep.all() else 0
+    dropped = len(t) - block * int(keep_b.sum()) - left_out
     note = (
         f"averaged in blocks of {block} samples before the estimate (the record has "
-        f"{len(t)} samples; {n_blocks} block means); counts, noise level and residual RMS "
-        "are per sample again (the residual RMS as the block means' times "
-        f"sqrt({block}), which holds for white noise)"
+        f"{len(t)} samples; {int(keep_b.sum())} block means used); counts, noise level and "
+        "residual RMS are given per sample"
+        + (f"; {dropped} further samples, in blocks holding an excluded sample or after the "
+           "last whole block, are not in the fit" if dropped else "")
     )
-    return _per_sample(found, block, len(t), tuple(notes) + (note,))
+    rows = slice(None, None, max(1, len(t) // SCATTER_SAMPLES))
+    sample_t, sample_v = t[rows][keep[rows]], v[rows][keep[rows]]
+    return _per_sample(found, block, tuple(notes) + (note,), excluded=len(t) - int(keep.sum()),
+                       given=per_sample, quantised=bool(resolution and noise_sigma is not None
+                                                        and resolution > noise_sigma),
+                       scatter=(sample_t, sample_v))
+
+
+#: Samples (every k-th of a long record) on which a pre-averaged estimate's per-sample
+#: residual RMS is measured: its relative standard error is about 1/sqrt(2 N), 7e-4.
+SCATTER_SAMPLES = 1_000_000
+
+#: Counts in the notes of an estimate made on block means, rescaled to samples.
+_COUNTED_NOTES = (
+    re.compile(r"^(\d+)( samples around the flagged extrema)"),
+    re.compile(r"(fitted on means of )(\d+)( samples)"),
+    re.compile(r"(: )(\d+)( effective of )(\d+)( (?:samples|block means))"),
+)
+
+
+def _rescaled_note(note: str, block: int) -> str:
+    """``note`` with its counts of block means given in samples (``block`` each)."""
+    note = _COUNTED_NOTES[0].sub(lambda m: f"{int(m.group(1)) * block}{m.group(2)}", note)
+    note = _COUNTED_NOTES[1].sub(
+        lambda m: f"{m.group(1)}{int(m.group(2)) * block}{m.group(3)}", note)
+    return _COUNTED_NOTES[2].sub(
+        lambda m: f"{m.group(1)}{int(m.group(2)) * block}{m.group(3)}"
+                  f"{int(m.group(4)) * block} samples", note)
 
 
 def _per_sample(
-    found: RingdownEstimate | AperiodicEstimate, block: int, samples: int,
+    found: RingdownEstimate | AperiodicEstimate,
+    block: int,
     notes: tuple[str, ...],
+    *,
+    excluded: int,
+    given: float | None,
+    quantised: bool,
+    scatter: tuple[np.ndarray, np.ndarray],
 ) -> RingdownEstimate | AperiodicEstimate:
-    """An estimate made on block means with its counts and noise given per sample."""
-    used = int(found.samples_used) * block
-    scale = math.sqrt(block)
-    counted = tuple(
-        re.sub(r"^(\d+) samples around", lambda m: f"{int(m.group(1)) * block} samples around",
-               note)
-        for note in found.notes
-    )
+    """An estimate made on block means, with its counts and noise given per sample.
+
+    Counts are multiplied by ``block`` (``samples_excluded`` is the caller's excluded
+    samples). The residual RMS is measured on single samples (``scatter``: every k-th
+    usable sample of the record) with the estimate's own model, so it holds whatever
+    the noise's correlation. The noise level is the given one per sample (``given``,
+    quantisation included) when the fit kept it, else the per-sample residual RMS (at
+    least the given level), as for an estimate from every sample.
+    """
+    residual = float(np.sqrt(np.mean((scatter[1] - found.model(scatter[0])) ** 2)))
+    kept_given = given is not None and found.noise_source.startswith("given")
+    if kept_given:
+        noise = given
+    elif given is not None:
+        noise = max(given, residual)
+    else:
+        noise = residual
+    source = found.noise_source
+    if kept_given and quantised and "quantisation" not in source:
+        source += " plus quantisation q^2/12"
     changes = dict(
-        noise_sigma=found.noise_sigma * scale,
-        samples_used=used,
-        samples_excluded=samples - used,
+        noise_sigma=noise,
+        noise_source=source,
+        samples_used=int(found.samples_used) * block,
+        samples_excluded=excluded,
         effective_samples=found.effective_samples * block,
-        residual_rms=found.residual_rms * scale,
-        notes=notes + counted,
+        residual_rms=residual,
+        notes=notes + tuple(_rescaled_note(note, block) for note in found.notes),
     )
     alternate = getattr(found, "alternate", None)
     if alternate is not None:
-        changes["alternate"] = _per_sample(alternate, block, samples, notes)
+        changes["alternate"] = _per_sample(alternate, block, notes, excluded=excluded,
+                                           given=given, quantised=quantised, scatter=scatter)
     return replace(found, **changes)
 
 

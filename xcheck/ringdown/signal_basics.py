@@ -61,10 +61,11 @@ def spaced_peaks(values: np.ndarray, distance: int) -> np.ndarray:
     """Indices of samples that are the highest within ``distance - 1`` samples of themselves.
 
     Non-maximum suppression: a sample is a peak when no sample closer than ``distance``
-    (and neither neighbour) is higher and it is higher than at least one neighbour (so a flat record has no
-    peaks); the first and last samples never count. Of equal peaks closer than
-    ``distance`` (a flat top) the first is kept. Peaks are therefore at least
-    ``distance`` samples apart. Unlike ``scipy.signal.find_peaks(values,
+    (and neither neighbour) is higher and it is higher than at least one neighbour (so
+    a flat record has no peaks); the first and last samples never count. A flat top
+    counts once, at its middle sample (the left one of two middle ones); of equal peaks
+    closer than ``distance`` the first is kept; a missing sample (NaN) counts as lower
+    than any. Peaks are therefore at least ``distance`` samples apart. Unlike ``scipy.signal.find_peaks(values,
     distance=distance)``, which removes lower peaks greedily from the highest down, a
     peak is not kept because the higher peak next to it was removed by a still higher
     one; on a ringing record the two agree at the ringing's extrema (the tests compare
@@ -86,14 +87,38 @@ def spaced_peaks(values: np.ndarray, distance: int) -> np.ndarray:
     distance = max(1, int(math.ceil(distance)))
     if y.size < 3:
         return np.zeros(0, dtype=int)
+    if np.isnan(y).any():
+        y = np.where(np.isnan(y), -np.inf, y)  # a missing sample is lower than any
     top = y >= window_maximum(y, 2 * max(distance, 2) - 1)
     top[0] = top[-1] = False
     inner = top[1:-1]
     inner &= (y[1:-1] > y[:-2]) | (y[1:-1] > y[2:])
     index = np.flatnonzero(top)
+    # A flat top passes at its two edges: take its middle once.
+    rising = index[(index + 1 < y.size) & (y[np.minimum(index + 1, y.size - 1)] == y[index])]
+    if rising.size:
+        ends = np.array([_flat_end(y, i) for i in rising])
+        middles = rising + (ends - rising) // 2
+        inside = np.zeros(index.size, dtype=bool)
+        for lo, hi in zip(rising, ends):
+            inside |= (index >= lo) & (index <= hi)
+        index = np.union1d(index[~inside], middles)
     if index.size > 1:
         index = index[np.concatenate(([True], np.diff(index) >= max(distance, 2)))]
     return index.astype(int)
+
+
+def _flat_end(y: np.ndarray, start: int) -> int:
+    """Index of the last sample of the run of samples equal to ``y[start]``."""
+    step = 64
+    while True:
+        stop = min(start + step, y.size)
+        differ = np.flatnonzero(y[start:stop] != y[start])
+        if differ.size:
+            return start + int(differ[0]) - 1
+        if stop == y.size:
+            return y.size - 1
+        step *= 4
 
 
 def strongest_line(values: np.ndarray, step: float, nfft: int,
