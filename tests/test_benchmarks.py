@@ -30,8 +30,8 @@ EXPECTED = {
     **{f"b-{name}-{snr}dB": CRB_VALUE for name in ("alpha", "f_d") for snr in (40, 20, 10)},
     **{f"b-se-{snr}dB": rf"{CRB_VALUE}-{CRB_VALUE}" for snr in (40, 20, 10)},
     **{f"b-refused-{k}": r"\d+/\d+" for k in (1, 2, 3)},
-    **{f"c-error-{z}": r"\d\.\d\de[-+]\d\d" for z in ("0.01", "0.1", "1", "5")},
-    **{f"c-points-{z}": rf"({RATIO}|n/a)" for z in ("0.01", "0.1", "1", "5")},
+    **{f"c-error-{z}": r"\d\.\d\de[-+]\d\d" for z in ("0.01", "0.1", "1", "5", "fourth-order")},
+    **{f"c-points-{z}": rf"({RATIO}|n/a)" for z in ("0.01", "0.1", "1", "5", "fourth-order")},
     **{f"d-{c}": RATIO for c in ("demo", "fourth-order")},
     **{f"d-{c}-agreement": r"\d\.\d\de[-+]\d\d" for c in ("demo", "fourth-order")},
     # Row (e) at the quick sizes (2000 and 5000 samples): a ratio per size, the peak
