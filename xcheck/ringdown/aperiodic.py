@@ -40,8 +40,14 @@ from xcheck.ringdown.aperiodic_result import (
     AperiodicEstimate,
 )
 from xcheck.ringdown.checks import validated
-from xcheck.ringdown.extrema import sample_step
-from xcheck.ringdown.nls import at_least, block_means, residual_correlation, sandwich_covariance
+from xcheck.ringdown.extrema import sample_step, uniformly_sampled
+from xcheck.ringdown.nls import (
+    at_least,
+    block_means,
+    given_noise,
+    residual_correlation,
+    sandwich_covariance,
+)
 from xcheck.ringdown.result import Estimate, gradient
 from xcheck.values import format_eng
 
@@ -178,7 +184,7 @@ def analyse_aperiodic(
         else None
     )
     step = sample_step(t)
-    uniform = bool(np.max(np.abs(np.diff(t) - step)) <= 1e-3 * step)
+    uniform = uniformly_sampled(t, step)
     t_ref = float(t[keep][0])
     ts = t - t_ref
     n_in = int(keep.sum())
@@ -314,11 +320,7 @@ def _noise(
     s_sample = math.sqrt(float(resid @ resid) / max(len(resid) - k, 1))
     rho, n_eff = residual_correlation(fit.residuals)
     if noise_sigma is not None:
-        sigma = float(noise_sigma)
-        source = "given noise level (pre-event baseline)"
-        if resolution and resolution > noise_sigma:
-            sigma = math.hypot(sigma, resolution / math.sqrt(12.0))
-            source += " plus quantisation q^2/12"
+        sigma, source = given_noise(noise_sigma, resolution)
         sigma_fit = sigma / math.sqrt(block)
         if s_fit > sigma_fit * (1.0 + 3.0 / math.sqrt(2.0 * n_eff)):
             notes.append(

@@ -57,11 +57,13 @@ from xcheck.ringdown.extrema import (
     refine_with_model,
     rough_frequency,
     sample_step,
+    uniformly_sampled,
 )
 from xcheck.ringdown.nls import (
     at_least,
     block_means,
     fit_damped,
+    given_noise,
     linear_amplitudes,
     mode_count,
     model_chunked,
@@ -209,11 +211,7 @@ def estimate_ringdown(
     t, v, keep = validated(time, voltage, exclude, source)
     notes: list[str] = []
     step = sample_step(t)
-    spread = np.diff(t)
-    spread -= step
-    np.abs(spread, out=spread)
-    uniform = bool(spread.max() <= 1e-3 * step)
-    del spread
+    uniform = uniformly_sampled(t, step)
     if not uniform:
         notes.append(
             "sampling is not uniform: the pencil runs on an interpolated copy, no block averaging"
@@ -307,20 +305,15 @@ def _preaveraged(
     n_blocks = len(t) // block
     tb, vb = (x[: n_blocks * block].reshape(n_blocks, block).mean(axis=1) for x in (t, v))
     keep_b = keep[: n_blocks * block].reshape(n_blocks, block).all(axis=1)
-    per_sample = None
-    sigma = None
-    if noise_sigma is not None:
-        per_sample = noise_sigma
-        if resolution and resolution > noise_sigma:
-            per_sample = math.hypot(noise_sigma, resolution / math.sqrt(12.0))
-        sigma = per_sample / math.sqrt(block)
+    given = None if noise_sigma is None else given_noise(noise_sigma, resolution)
+    sigma = None if given is None else given[0] / math.sqrt(block)
     found = estimate_ringdown(
         tb, vb, noise_sigma=sigma, exclude=~keep_b, modes=modes, resolution=None,
         source=source, allow_aperiodic=allow_aperiodic, preaverage=False,
         extremum_resolution=resolution,
     )
-    left_out = len(t) - int(keep.sum()) if not keep.all() else 0
-    dropped = len(t) - block * int(keep_b.sum()) - left_out
+    excluded = len(t) - int(keep.sum())
+    dropped = len(t) - block * int(keep_b.sum()) - excluded
     note = (
         f"averaged in blocks of {block} samples before the estimate (the record has "
         f"{len(t)} samples; {int(keep_b.sum())} block means used); counts, noise level and "
@@ -330,9 +323,7 @@ def _preaveraged(
     )
     rows = slice(None, None, max(1, len(t) // SCATTER_SAMPLES))
     sample_t, sample_v = t[rows][keep[rows]], v[rows][keep[rows]]
-    return _per_sample(found, block, tuple(notes) + (note,), excluded=len(t) - int(keep.sum()),
-                       given=per_sample, quantised=bool(resolution and noise_sigma is not None
-                                                        and resolution > noise_sigma),
+    return _per_sample(found, block, tuple(notes) + (note,), excluded=excluded, given=given,
                        scatter=(sample_t, sample_v))
 
 
@@ -364,8 +355,7 @@ def _per_sample(
     notes: tuple[str, ...],
     *,
     excluded: int,
-    given: float | None,
-    quantised: bool,
+    given: tuple[float, str] | None,
     scatter: tuple[np.ndarray, np.ndarray],
 ) -> RingdownEstimate | AperiodicEstimate:
     """An estimate made on block means, with its counts and noise given per sample.
@@ -373,21 +363,19 @@ def _per_sample(
     Counts are multiplied by ``block`` (``samples_excluded`` is the caller's excluded
     samples). The residual RMS is measured on single samples (``scatter``: every k-th
     usable sample of the record) with the estimate's own model, so it holds whatever
-    the noise's correlation. The noise level is the given one per sample (``given``,
-    quantisation included) when the fit kept it, else the per-sample residual RMS (at
-    least the given level), as for an estimate from every sample.
+    the noise's correlation. The noise level is the given one per sample (``given``:
+    the level and its words from :func:`xcheck.ringdown.nls.given_noise`) when the fit
+    kept it, else the per-sample residual RMS (at least the given level), as for an
+    estimate from every sample.
     """
     residual = float(np.sqrt(np.mean((scatter[1] - found.model(scatter[0])) ** 2)))
-    kept_given = given is not None and found.noise_source.startswith("given")
-    if kept_given:
-        noise = given
-    elif given is not None:
-        noise = max(given, residual)
-    else:
-        noise = residual
     source = found.noise_source
-    if kept_given and quantised and "quantisation" not in source:
-        source += " plus quantisation q^2/12"
+    if given is None:
+        noise = residual
+    elif source.startswith("given"):
+        noise, source = given
+    else:
+        noise = max(given[0], residual)
     changes = dict(
         noise_sigma=noise,
         noise_source=source,
@@ -400,7 +388,7 @@ def _per_sample(
     alternate = getattr(found, "alternate", None)
     if alternate is not None:
         changes["alternate"] = _per_sample(alternate, block, notes, excluded=excluded,
-                                           given=given, quantised=quantised, scatter=scatter)
+                                           given=given, scatter=scatter)
     return replace(found, **changes)
 
 
@@ -571,11 +559,7 @@ def _fit(
     s_fit = float(np.sqrt(np.sum(fit.residuals**2) / max(len(tf) - p, 1)))
     rho, n_eff_fit = residual_correlation(fit.residuals)
     if noise_sigma is not None:
-        sigma = float(noise_sigma)
-        noise_source = "given noise level (pre-event baseline)"
-        if resolution and resolution > noise_sigma:
-            sigma = math.hypot(sigma, resolution / math.sqrt(12.0))
-            noise_source += " plus quantisation q^2/12"
+        sigma, noise_source = given_noise(noise_sigma, resolution)
         sigma_fit = sigma / math.sqrt(block)
         if s_fit > sigma_fit * (1.0 + 3.0 / math.sqrt(2.0 * n_eff_fit)):
             notes.append(

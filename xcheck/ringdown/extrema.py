@@ -45,6 +45,20 @@ def sample_step(time: np.ndarray) -> float:
     return float(np.median(np.diff(time)))
 
 
+def uniformly_sampled(time: np.ndarray, step: float) -> bool:
+    """True when every sample interval is within 1e-3 of ``step`` (the median one).
+
+    Computed in place on one array of intervals (a long record makes no further
+    temporaries).
+    """
+    if len(time) < 2:
+        return True
+    spread = np.diff(time)
+    spread -= step
+    np.abs(spread, out=spread)
+    return bool(spread.max() <= 1e-3 * step)
+
+
 def noise_from_smoothing(voltage: np.ndarray, samples_per_period: float) -> float:
     """Robust per-sample noise estimate from the residual of a Savitzky-Golay smoother.
 
@@ -137,7 +151,7 @@ def find_extrema(
         peaks = spaced_peaks(sign * y, distance)
         candidates += [(int(i), sign) for i in peaks]
     candidates.sort()
-    uniform = bool(np.max(np.abs(np.diff(t) - step)) <= 1e-3 * step) if len(t) > 1 else True
+    uniform = uniformly_sampled(t, step)
     design = np.vander(np.arange(-half, half + 1, dtype=float), 3)
     unscaled = np.linalg.inv(design.T @ design)
     kept: list[tuple[float, float, float, int]] = []

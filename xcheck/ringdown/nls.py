@@ -17,6 +17,7 @@ lag where it has died out (:func:`residual_correlation`, which also gives ``N_ef
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -220,6 +221,32 @@ def at_least(cov: np.ndarray, floor: np.ndarray) -> np.ndarray:
         np.where(d_cov > 0, np.maximum(d_floor / np.where(d_cov > 0, d_cov, 1.0), 1.0), 1.0)
     )
     return cov * np.outer(scale, scale)
+
+
+def given_noise(noise_sigma: float, resolution: float | None) -> tuple[float, str]:
+    """A given per-sample noise level for the uncertainties, and where it came from.
+
+    When the converter step q exceeds the given level, its rounding variance q^2/12
+    (uniform-error model, common practice) is added; a finer step hides in the noise.
+
+    Parameters
+    ----------
+    noise_sigma
+        The given noise level (V), e.g. the pre-event baseline's scatter.
+    resolution
+        The converter step (V), or None.
+
+    Returns
+    -------
+    tuple
+        The level (V) and the words for ``noise_source``.
+    """
+    sigma = float(noise_sigma)
+    source = "given noise level (pre-event baseline)"
+    if resolution and resolution > noise_sigma:
+        sigma = math.hypot(sigma, resolution / math.sqrt(12.0))
+        source += " plus quantisation q^2/12"
+    return sigma, source
 
 
 def block_means(
