@@ -65,11 +65,12 @@ def spaced_peaks(values: np.ndarray, distance: int) -> np.ndarray:
     a flat record has no peaks); the first and last samples never count. A flat top
     counts once, at its middle sample (the left one of two middle ones); of equal peaks
     closer than ``distance`` the first is kept; a missing sample (NaN) counts as lower
-    than any. Peaks are therefore at least ``distance`` samples apart. Unlike ``scipy.signal.find_peaks(values,
-    distance=distance)``, which removes lower peaks greedily from the highest down, a
-    peak is not kept because the higher peak next to it was removed by a still higher
-    one; on a ringing record the two agree at the ringing's extrema (the tests compare
-    them). The cost is a few passes over the record whatever ``distance`` is.
+    than any. Peaks are therefore at least ``distance`` samples apart. Unlike
+    ``scipy.signal.find_peaks(values, distance=distance)``, which removes lower peaks
+    greedily from the highest down, a peak is not kept because the higher peak next to
+    it was removed by a still higher one; on a ringing record the two agree at the
+    ringing's extrema (the tests compare them). The cost is a few passes over the
+    record whatever ``distance`` is.
 
     Parameters
     ----------
@@ -99,9 +100,10 @@ def spaced_peaks(values: np.ndarray, distance: int) -> np.ndarray:
     if rising.size:
         ends = np.array([_flat_end(y, i) for i in rising])
         middles = rising + (ends - rising) // 2
-        inside = np.zeros(index.size, dtype=bool)
-        for lo, hi in zip(rising, ends):
-            inside |= (index >= lo) & (index <= hi)
+        # The flat tops are disjoint and in order: each index lies in the last one
+        # starting at or before it, or in none.
+        top_of = np.searchsorted(rising, index, side="right") - 1
+        inside = (top_of >= 0) & (index <= ends[np.maximum(top_of, 0)])
         index = np.union1d(index[~inside], middles)
     if index.size > 1:
         index = index[np.concatenate(([True], np.diff(index) >= max(distance, 2)))]
