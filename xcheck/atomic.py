@@ -38,8 +38,6 @@ import os
 import re
 import secrets
 import shutil
-import signal
-import threading
 from collections.abc import Callable, Iterable, Iterator
 from contextvars import ContextVar
 from pathlib import Path
@@ -52,6 +50,7 @@ except ImportError:  # Windows: strays are kept, never removed
 from xcheck import __version__
 from xcheck.engines.deck import GENERATED_MARK, is_xcheck_deck
 from xcheck.errors import XcheckError
+from xcheck.interrupts import sigint_held, stop_if_interrupted
 
 #: PNG text chunks of every figure xcheck writes: the Software chunk lets a later run
 #: tell its own files; no creation time, so a figure is byte-identical run to run.
@@ -595,6 +594,7 @@ def write_folder_atomically(
         # From here on, an interrupt (Ctrl-C) anywhere removes the staging folder.
         lock = _hold(staging)
         writer(staging)
+        stop_if_interrupted()  # a Ctrl-C a library did not pass on still stops the swap
         _swap_in(staging, folder)
     except OSError as exc:
         _remove_staging(staging)
@@ -609,18 +609,11 @@ def write_folder_atomically(
 
 def _remove_staging(staging: Path | None) -> None:
     """Remove a staging folder, with Ctrl-C held off until it is gone (a second
-    interrupt would otherwise leave half of it behind); in the main thread only, where
-    signals are delivered."""
+    interrupt would otherwise leave half of it behind)."""
     if staging is None:
         return
-    blocked = threading.current_thread() is threading.main_thread()
-    if blocked:
-        signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGINT})
-    try:
+    with sigint_held():
         shutil.rmtree(staging, ignore_errors=True)
-    finally:
-        if blocked:
-            signal.pthread_sigmask(signal.SIG_UNBLOCK, {signal.SIGINT})
 
 
 def _swap_in(staging: Path, folder: Path) -> None:

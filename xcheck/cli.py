@@ -15,12 +15,18 @@ import argparse
 import atexit
 import importlib
 import os
+import signal
 import sys
 import textwrap
 from collections.abc import Sequence
 
 from xcheck import __version__
 from xcheck.errors import XcheckError
+from xcheck.interrupts import (
+    caused_by_interrupt,
+    silence_unraisable_errors,
+    watching_for_ctrl_c,
+)
 
 #: Subcommand name -> (module under xcheck.commands, one-line help).
 COMMANDS: dict[str, tuple[str, str]] = {
@@ -99,12 +105,24 @@ def _paragraph(message: str) -> str:
 
 def main(argv: Sequence[str] | None = None) -> int:
     """Run xcheck with ``argv`` (default: the process arguments); return the exit status."""
-    try:
-        return _dispatch(argv)
-    except KeyboardInterrupt:  # also while the chosen command's libraries are imported
-        _stop_ngspice_child()
-        sys.stderr.write("xcheck: interrupted; nothing further was written.\n")
-        return EXIT_INTERRUPTED
+    with watching_for_ctrl_c():
+        try:
+            return _dispatch(argv)
+        except KeyboardInterrupt:  # also while the chosen command's libraries are imported
+            return _interrupted()
+        except Exception as exc:
+            # Ctrl-C that other code turned into its own error while it unwound (a C
+            # extension's "initialization failed", a clean-up step that failed) is still
+            # Ctrl-C; anything else is a defect and keeps its traceback.
+            if caused_by_interrupt(exc):
+                return _interrupted()
+            raise
+
+
+def _interrupted() -> int:
+    _stop_ngspice_child()
+    sys.stderr.write("xcheck: interrupted; nothing further was written.\n")
+    return EXIT_INTERRUPTED
 
 
 def _stop_ngspice_child() -> None:
@@ -133,6 +151,8 @@ def _dispatch(argv: Sequence[str] | None) -> int:
     try:
         return int(args._run(args))
     except XcheckError as exc:
+        if caused_by_interrupt(exc):  # not the input's fault: see main()
+            raise
         sys.stderr.write("xcheck: " + _paragraph(str(exc)))
         return EXIT_BAD_INPUT
 
@@ -140,13 +160,23 @@ def _dispatch(argv: Sequence[str] | None) -> int:
 def entry() -> None:
     """Console-script entry point.
 
-    When the command is done the process ends at once: the exit handlers run (the
-    ngspice child is stopped) and the standard streams are flushed, then ``os._exit`` skips
-    the interpreter's own teardown. Every file xcheck writes is closed by then (reports
-    are written whole and renamed into place); the teardown of the libraries' modules
-    and of a long measurement's arrays took about half a second the user waited for.
+    When the command is done the process ends at once: Ctrl-C is ignored from then on,
+    the exit handlers run (the ngspice child is stopped) and the standard streams are
+    flushed, then ``os._exit`` skips the interpreter's own teardown. Every file xcheck
+    writes is closed by then (reports are written whole and renamed into place); the
+    teardown of the libraries' modules and of a long measurement's arrays took about
+    half a second the user waited for.
     """
-    code = main()
+    try:
+        code = main()
+    except KeyboardInterrupt:  # in the instant between main's own handling and here
+        code = _interrupted()
+    finally:
+        # The command is done: the exit handlers only stop child processes (in bounded
+        # time), so a Ctrl-C now would only print a traceback from inside them.
+        signal.signal(signal.SIGINT, signal.SIG_IGN)
+    if code == EXIT_INTERRUPTED:
+        silence_unraisable_errors()
     run_exit_handlers = getattr(atexit, "_run_exitfuncs", None)
     if run_exit_handlers is None:  # not CPython: the ordinary exit
         raise SystemExit(code)

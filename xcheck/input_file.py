@@ -18,6 +18,8 @@ import stat
 from pathlib import Path
 from typing import BinaryIO, Protocol
 
+from xcheck.interrupts import sigint_held
+
 #: The kinds of file that are not regular files, as a message words them.
 _KINDS = (
     (stat.S_ISDIR, "a folder"),
@@ -67,6 +69,7 @@ def open_regular(path: str | Path, max_bytes: int, what: str) -> BinaryIO:
     # O_NONBLOCK: opening a FIFO with no writer must not wait; it is refused below.
     flags = os.O_RDONLY | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_BINARY", 0)
     fd = os.open(path, flags)
+    handle: BinaryIO | None = None
     try:
         info = os.fstat(fd)
         if not stat.S_ISREG(info.st_mode):
@@ -80,10 +83,18 @@ def open_regular(path: str | Path, max_bytes: int, what: str) -> BinaryIO:
                 f"{size_words(max_bytes)} accepted for {what}; check that this is the "
                 "right file")
         os.set_blocking(fd, True)
-        return os.fdopen(fd, "rb")
+        # Ctrl-C is held off until the file object owns the descriptor, so exactly one
+        # of the two closes it below (closing it twice once reported a spurious "Bad
+        # file descriptor" as the input's fault).
+        with sigint_held():
+            handle = os.fdopen(fd, "rb")
     except BaseException:
-        os.close(fd)
+        if handle is not None:
+            handle.close()
+        else:
+            os.close(fd)
         raise
+    return handle
 
 
 class _Readable(Protocol):

@@ -146,7 +146,7 @@ def test_sigint_while_writing_exits_130_and_cleans_up(bench, capsys):
     _wait_for_staging(process, bench)
     process.send_signal(signal.SIGINT)
     code, err = _finish(process)
-    assert code == 130
+    assert code == 130, err
     _interrupt_message_only(err)
     out = bench / "out"
     assert (_snapshot(out) if out.exists() else None) == before
@@ -164,7 +164,7 @@ def test_sigint_while_working_with_ngspice_exits_130_without_a_traceback(bench, 
     _wait_for_progress(process)
     process.send_signal(signal.SIGINT)
     code, err = _finish(process)
-    assert code == 130
+    assert code == 130, err
     _interrupt_message_only(err)
     assert not (bench / "out").exists()
     assert _inputs(bench) == inputs
@@ -178,7 +178,7 @@ def test_ctrl_c_to_the_process_group_exits_130_without_a_traceback(bench):
     _wait_for_progress(process)
     os.killpg(process.pid, signal.SIGINT)
     code, err = _finish(process)
-    assert code == 130
+    assert code == 130, err
     _interrupt_message_only(err)
     assert not (bench / "out").exists()
     assert _inputs(bench) == inputs
@@ -200,7 +200,7 @@ def test_ctrl_c_to_the_process_group_while_ngspice_runs(bench):
         assert line, "the run ended before its ngspice stage"
     os.killpg(process.pid, signal.SIGINT)
     code, err = _finish(process)
-    assert code == 130
+    assert code == 130, err
     _interrupt_message_only(err)
     assert "Traceback" not in err and "KeyboardInterrupt" not in err
     assert not (bench / "out").exists()

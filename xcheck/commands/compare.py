@@ -11,6 +11,7 @@ from pathlib import Path
 
 from xcheck.compare import run_comparison
 from xcheck.errors import XcheckError
+from xcheck.interrupts import stop_if_interrupted
 from xcheck.fixture.reader import load_fixture
 from xcheck.outcome import Comparison
 from xcheck.report.markdown import write_report
@@ -69,6 +70,7 @@ def progress_printer(quiet: bool):
     start = time.monotonic()
 
     def say(message: str) -> None:
+        stop_if_interrupted()  # between stages: a Ctrl-C a library did not pass on
         if not quiet:
             sys.stderr.write(f"[{time.monotonic() - start:5.1f} s] {message}\n")
             sys.stderr.flush()

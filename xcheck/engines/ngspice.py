@@ -60,6 +60,7 @@ import numpy as np
 
 from xcheck.errors import SimulationError, XcheckError
 from xcheck.engines.waveform import Waveform
+from xcheck.interrupts import sigint_held
 
 if TYPE_CHECKING:  # the ngspice child imports this module: it needs no circuit graph
     from xcheck.circuit.model import Circuit
@@ -455,10 +456,21 @@ def _run_ac_in_child(shared: Any, run: AcDeckRun) -> dict[str, Any]:
 
 
 def _serve(conn: Connection) -> None:
-    """Child process main loop: load ngspice, then answer requests until told to stop."""
+    """Child process entry point: :func:`_load_and_answer`, quietly ended when the
+    parent stops listening."""
     # Ctrl-C reaches the whole process group; the parent decides (it stops this child),
     # so the child never prints a KeyboardInterrupt traceback of its own.
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    try:
+        _load_and_answer(conn)
+    except (BrokenPipeError, ConnectionResetError, EOFError):
+        # The parent stopped listening (it was interrupted while this child loaded
+        # ngspice): nothing to say, and nothing on the shared stderr.
+        os._exit(0)
+
+
+def _load_and_answer(conn: Connection) -> None:
+    """Load ngspice, tell the parent, then answer its requests until told to stop."""
     try:
         shared = _load_ngspice()
         conn.send(("ready", _version_of(shared)))
@@ -520,9 +532,20 @@ class NgspiceWorker:
         context = multiprocessing.get_context("spawn")
         parent_conn, child_conn = context.Pipe()
         process = context.Process(target=_serve, args=(child_conn,), daemon=True)
-        process.start()
-        child_conn.close()
-        self._process, self._conn = process, parent_conn
+        if os.name == "posix":
+            # The first spawn of a process starts multiprocessing's resource tracker,
+            # which unmasks SIGINT when it is done; started here, it leaves the mask
+            # that sigint_held sets for the child in place.
+            from multiprocessing import resource_tracker
+
+            resource_tracker.ensure_running()
+        # Ctrl-C between starting the child and recording it would leave a child
+        # nobody stops, and a Ctrl-C to the whole group must not reach the child before
+        # its own code ignores it (sigint_held's mask, inherited through exec).
+        with sigint_held():
+            process.start()
+            child_conn.close()
+            self._process, self._conn = process, parent_conn
         if not parent_conn.poll(START_TIMEOUT):
             self.stop()
             raise NgspiceUnavailable(
@@ -684,6 +707,8 @@ class NgspiceWorker:
         is still there after a second."""
         process, conn = self._process, self._conn
         self._process, self._conn, self.runs = None, None, 0
+        if force and process is not None and process.is_alive():
+            process.kill()  # before its pipe closes, which it would otherwise notice
         if conn is not None:
             try:
                 if not force and process is not None and process.is_alive():
